@@ -1,0 +1,25 @@
+# Two entry points of the quick start: `make demo` and `make test`.
+# Both create .venv on first use and install the package into it.
+PYTHON ?= python3
+VENV   := .venv
+BIN    := $(VENV)/bin
+STAMP  := $(VENV)/.installed
+
+.PHONY: demo test install clean-demo
+
+$(STAMP): pyproject.toml
+	$(PYTHON) -m venv $(VENV)
+	$(BIN)/python -m pip install --quiet --upgrade pip
+	$(BIN)/python -m pip install --quiet -e ".[test]"
+	touch $(STAMP)
+
+install: $(STAMP)
+
+test: $(STAMP)
+	$(BIN)/python -m pytest -q
+
+demo: $(STAMP)
+	$(BIN)/python -m scatter_pop.demo runs/demo.toml --out runs/demo_out
+
+clean-demo:
+	rm -rf runs/demo_out
