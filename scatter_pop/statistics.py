@@ -5,6 +5,10 @@ are scipy's; this module fixes the choices that matter for honest p-values:
 
 * Kolmogorov–Smirnov (:func:`scipy.stats.ks_2samp`, ``method="auto"``: exact
   for small samples, asymptotic otherwise — never clipped);
+* one-sample KS and Anderson–Darling against a fully specified reference
+  distribution, through the probability integral transform (the statistic
+  is then distribution-free; the AD p-value comes from
+  :func:`scipy.stats.goodness_of_fit` on the uniform distribution);
 * k-sample Anderson–Darling (Scholz & Stephens 1987, JASA 82, 918) with the
   midrank variant (ties allowed) and a *permutation* p-value
   (:class:`scipy.stats.PermutationMethod`), because scipy's interpolated
@@ -23,7 +27,8 @@ import scipy.stats
 
 __all__ = [
     "TwoSampleResult", "two_sample", "ks_critical_coefficient", "ks_critical_value",
-    "ad_ksamp", "ADResult",
+    "ad_ksamp", "ADResult", "REFERENCE_DISTRIBUTIONS", "reference_distribution",
+    "OneSampleResult", "one_sample", "fit_beta",
 ]
 
 
@@ -189,3 +194,106 @@ def ad_ksamp(samples, *, variant: str = "midrank") -> ADResult:
         t = float(scipy.stats.anderson_ksamp(arrays, variant=variant).statistic)
     sigma = _ad_sigma([a.size for a in arrays])
     return ADResult(a2=t * sigma + (len(arrays) - 1), t=t, sigma=sigma)
+
+
+# --------------------------------------------------------------------------- one sample
+_RAYLEIGH_SIGMA = 0.3
+
+#: name -> description with its source (see :func:`reference_distribution`)
+REFERENCE_DISTRIBUTIONS: dict[str, str] = {
+    "beta_kipping2013": "Beta(a=0.867, b=3.03), Kipping 2013, MNRAS 434, L51",
+    "rayleigh_jt2008": "Rayleigh(sigma=0.3) renormalised on [0, 1), Juric & Tremaine 2008, ApJ 686, 603",
+}
+
+
+def reference_distribution(name: str):
+    """Frozen scipy distribution of a published eccentricity law.
+
+    Parameters
+    ----------
+    name : str
+        A key of :data:`REFERENCE_DISTRIBUTIONS`.
+
+    Notes
+    -----
+    The Rayleigh law dn ∝ e exp[−½(e/σ)²] de is truncated to [0, 1) and
+    renormalised; it is a Weibull law with shape 2 and scale σ√2, so scipy's
+    ``truncweibull_min`` represents it exactly.
+    """
+    if name == "beta_kipping2013":
+        return scipy.stats.beta(0.867, 3.03)
+    if name == "rayleigh_jt2008":
+        scale = _RAYLEIGH_SIGMA * math.sqrt(2.0)
+        return scipy.stats.truncweibull_min(2.0, 0.0, 1.0 / scale, scale=scale)
+    raise ValueError(f"reference distribution {name!r} unknown; allowed: "
+                     f"{', '.join(REFERENCE_DISTRIBUTIONS)}")
+
+
+@dataclass(frozen=True)
+class OneSampleResult:
+    """KS and Anderson–Darling test of one sample against a reference law.
+
+    Attributes
+    ----------
+    reference : str
+        Name of the reference distribution.
+    ks_statistic, ks_pvalue : float
+        One-sample KS distance and its exact p-value.
+    ad_statistic, ad_pvalue : float
+        One-sample A² and its Monte-Carlo p-value (never below
+        ``1 / (samples + 1)``).
+    n : int
+        Sample size.
+    """
+
+    reference: str
+    ks_statistic: float
+    ks_pvalue: float
+    ad_statistic: float
+    ad_pvalue: float
+    n: int
+
+
+def one_sample(x, reference: str, *, samples: int = 2000, rng=None) -> OneSampleResult:
+    """Test a sample of eccentricities against a published distribution.
+
+    Parameters
+    ----------
+    x : array_like
+        Eccentricities (dimensionless, in [0, 1)); non-finite values dropped.
+    reference : str
+        A key of :data:`REFERENCE_DISTRIBUTIONS`.
+    samples : int
+        Monte-Carlo samples of the null distribution of A².
+    rng : numpy.random.Generator, int or None
+    """
+    dist = reference_distribution(reference)
+    x = _finite(x, "x")
+    u = dist.cdf(x)
+    ks = scipy.stats.kstest(u, "uniform", method="auto")
+    ad = scipy.stats.goodness_of_fit(
+        scipy.stats.uniform, u, known_params={"loc": 0.0, "scale": 1.0}, statistic="ad",
+        n_mc_samples=int(samples), rng=np.random.default_rng(rng))
+    return OneSampleResult(reference=reference, ks_statistic=float(ks.statistic),
+                           ks_pvalue=float(ks.pvalue), ad_statistic=float(ad.statistic),
+                           ad_pvalue=float(ad.pvalue), n=int(x.size))
+
+
+def fit_beta(x) -> tuple[float, float]:
+    """Maximum-likelihood Beta(a, b) on [0, 1] (``scipy.stats.beta.fit``).
+
+    Parameters
+    ----------
+    x : array_like
+        Eccentricities strictly inside (0, 1) (the Beta log-density is
+        infinite at e = 0, so exact zeros must be removed first).
+
+    Returns
+    -------
+    (a, b) : tuple of float
+    """
+    x = _finite(x, "x")
+    if np.any((x <= 0.0) | (x >= 1.0)):
+        raise ValueError("fit_beta needs values strictly inside (0, 1); remove exact zeros first")
+    a, b, _, _ = scipy.stats.beta.fit(x, floc=0.0, fscale=1.0)
+    return float(a), float(b)

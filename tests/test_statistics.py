@@ -106,3 +106,80 @@ def test_two_sample_drops_nan_and_rejects_tiny_samples():
         st.two_sample([0.1, np.nan], [0.1, 0.2])
     with pytest.raises(ValueError, match="permutations"):
         st.two_sample([0.1, 0.2], [0.1, 0.2], permutations=0)
+
+
+# --------------------------------------------------------------------------- calibration, power
+def test_two_sample_calibration_rejection_rate_at_5_percent():
+    # Under H0 (both samples from one Beta law) a valid test rejects at alpha = 0.05 in 5 % of
+    # pairs; with 300 pairs the count must lie in the binomial 99 % interval (common practice).
+    rng = np.random.default_rng(2024)
+    pairs, alpha = 300, 0.05
+    rej_ks = rej_ad = 0
+    for _ in range(pairs):
+        x, y = rng.beta(0.867, 3.03, 60), rng.beta(0.867, 3.03, 45)
+        r = st.two_sample(x, y, permutations=99, rng=rng)
+        rej_ks += r.ks_pvalue <= alpha
+        rej_ad += r.ad_pvalue <= alpha
+    lo, hi = scipy.stats.binom.interval(0.99, pairs, alpha)
+    assert lo <= rej_ks <= hi
+    assert lo <= rej_ad <= hi
+
+
+def test_two_sample_power_beta_vs_rayleigh():
+    # Kipping 2013 Beta(0.867, 3.03) against Juric & Tremaine 2008 Rayleigh(0.3) at n = 300:
+    # the laws differ (means 0.22 vs 0.37), both tests must reject at alpha = 0.01
+    rng = np.random.default_rng(5)
+    x = st.reference_distribution("beta_kipping2013").rvs(300, random_state=rng)
+    y = st.reference_distribution("rayleigh_jt2008").rvs(300, random_state=rng)
+    r = st.two_sample(x, y, permutations=999, rng=rng)
+    assert r.ks_pvalue < 0.01 and r.ad_pvalue < 0.01
+    assert r.ks_statistic > st.ks_critical_value(0.01, 300, 300)
+
+
+# --------------------------------------------------------------------------- reference laws
+def test_kipping_beta_derived_values():
+    # Kipping 2013 (MNRAS 434, L51) Beta(0.867, 3.03); derived values from REFERENCES.md
+    d = st.reference_distribution("beta_kipping2013")
+    assert d.mean() == pytest.approx(0.2225, abs=1e-4)
+    assert d.median() == pytest.approx(0.1734, abs=1e-4)
+    assert d.sf(0.5) == pytest.approx(0.1009, abs=1e-4)
+    assert d.sf(0.8) == pytest.approx(0.00602, abs=1e-5)
+
+
+def test_rayleigh_truncated_on_unit_interval():
+    # Juric & Tremaine 2008 (ApJ 686, 603): dn ∝ e exp(-e^2/2 sigma^2), sigma = 0.3.
+    # REFERENCES.md quotes mean 0.3760, median 0.3532, P(e>0.5) = 0.2494, P(e>0.8) = 0.0286;
+    # these are the values of the law on [0, inf) (sigma sqrt(pi/2), sigma sqrt(2 ln 2), ...).
+    # On [0, 1) the law is renormalised by F(1) = 1 - exp(-1/(2 sigma^2)):
+    d = st.reference_distribution("rayleigh_jt2008")
+    f1 = 1.0 - math.exp(-1.0 / 0.18)
+    for x, sf_untruncated in ((0.5, 0.2494), (0.8, 0.0286)):
+        assert d.sf(x) == pytest.approx((sf_untruncated - (1 - f1)) / f1, abs=1e-4)
+    assert d.median() == pytest.approx(0.3 * math.sqrt(-2 * math.log(1 - 0.5 * f1)), abs=1e-6)
+    assert d.cdf(1.0) == pytest.approx(1.0) and d.cdf(0.0) == 0.0
+    # untruncated cross-check with scipy.stats.rayleigh (scale = sigma)
+    assert scipy.stats.rayleigh(scale=0.3).mean() == pytest.approx(0.3760, abs=1e-4)
+    assert scipy.stats.rayleigh(scale=0.3).median() == pytest.approx(0.3532, abs=1e-4)
+    with pytest.raises(ValueError, match="allowed"):
+        st.reference_distribution("uniform")
+
+
+def test_one_sample_accepts_own_law_and_rejects_other():
+    rng = np.random.default_rng(9)
+    x = st.reference_distribution("beta_kipping2013").rvs(300, random_state=rng)
+    own = st.one_sample(x, "beta_kipping2013", samples=500, rng=1)
+    other = st.one_sample(x, "rayleigh_jt2008", samples=500, rng=1)
+    assert own.ks_pvalue > 0.01 and own.ad_pvalue > 0.01
+    assert other.ks_pvalue < 1e-6 and other.ad_pvalue == pytest.approx(1 / 501)
+    # KS statistic equals scipy's one-sample KS against the same CDF (reference library)
+    ref = scipy.stats.kstest(x, scipy.stats.beta(0.867, 3.03).cdf)
+    assert own.ks_statistic == pytest.approx(ref.statistic)
+    assert own.n == 300
+
+
+def test_fit_beta_recovers_parameters_and_refuses_zeros():
+    rng = np.random.default_rng(4)
+    a, b = st.fit_beta(rng.beta(0.867, 3.03, 20000))
+    assert a == pytest.approx(0.867, rel=0.03) and b == pytest.approx(3.03, rel=0.04)
+    with pytest.raises(ValueError, match="zeros"):
+        st.fit_beta([0.0, 0.1, 0.2])
