@@ -119,6 +119,8 @@ def records_to_dataset(records: list[SystemRecord], n_planets: int) -> xr.Datase
                 value = getattr(p, name)
                 data[name][i, j] = int(value) if VAR[name].dtype == "i1" else value
         failed = r.end_reason == EndReason.FAILED
+        if failed:                      # no outcome: fates unknown, not "survived"
+            data["fate"][i, :] = FILL_INT
         data["seed"][i] = r.seed
         data["end_reason"][i] = int(r.end_reason)
         for name, fates in (("n_survivors", (Fate.SURVIVED,)), ("n_ejected", (Fate.EJECTED,)),
