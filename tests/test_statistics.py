@@ -79,6 +79,22 @@ def test_two_sample_permutation_pvalue_for_ss87_pair():
     assert (r.n_x, r.n_y, r.permutations) == (8, 8, 3000)
 
 
+@pytest.mark.parametrize("ties", [False, True])
+def test_vectorised_ad_permutation_equals_scipy(ties):
+    # the vectorised statistic must reproduce scipy.stats.anderson_ksamp (midrank,
+    # PermutationMethod) exactly: same T, and the same p-value from the same permutations
+    rng = np.random.default_rng(21)
+    x, y = rng.beta(1, 3, 70), rng.beta(1.4, 3, 55)
+    if ties:
+        x, y = np.round(x, 2), np.round(y, 2)
+    r = st.two_sample(x, y, permutations=300, rng=np.random.default_rng(8))
+    ref = scipy.stats.anderson_ksamp([x, y], variant="midrank",
+                                     method=scipy.stats.PermutationMethod(n_resamples=300,
+                                                                          rng=np.random.default_rng(8)))
+    assert r.ad_statistic == pytest.approx(ref.statistic, rel=1e-12, abs=1e-12)
+    assert r.ad_pvalue == ref.pvalue
+
+
 def test_two_sample_pvalue_not_floored_at_scipy_limit():
     # scipy's interpolated AD p-value is floored at 0.001 (scipy docs); with permutations the
     # p-value is limited only by the resolution 1/(permutations+1)
