@@ -269,8 +269,7 @@ def simulated_sample(datasets, *, rng, label: str = "simulated", cuts: SampleCut
                                         include_capped=include_capped).sum()) for ds in datasets)
     log = CutLog()
     log.record("systems", "systems", excluded["systems"])
-    log.record("systems_kept", "systems kept (not failed, not capped, |dE/E| within tolerance)",
-               excluded["kept"])
+    log.record("systems_kept", "systems kept (quality cuts)", excluded["kept"])
     log.record("survivors", "surviving planets of kept systems", n_survivors)
     keep = np.ones(table["e"].size, dtype=bool)
     log.record("bound", "bound survivors (a > 0, e < 1)", int(keep.sum()))
