@@ -28,7 +28,8 @@ from dataclasses import dataclass
 from .constants import MJUP_MSUN
 from .errors import InputError
 
-__all__ = ["Target", "Windows", "target_from_flags", "windows_from_flags"]
+__all__ = ["Target", "Windows", "TargetPoint", "target_from_flags", "windows_from_flags",
+           "target_point_from_flag"]
 
 
 @dataclass(frozen=True)
@@ -179,3 +180,35 @@ def windows_from_flags(target: Target, *, a_window=2.0, a_factor=None, msini_win
         raise InputError("--msini-err 0: the m sin i window of ±--msini-window x --msini-err is "
                          "empty; give --msini-err > 0 or --msini-factor F (> 1)")
     return Windows(a_window, a_factor, msini_window, msini_factor, e_window)
+
+
+@dataclass(frozen=True)
+class TargetPoint:
+    """A target as drawn in figures: e ± σ_e and a ± σ_a [AU] (no mass needed).
+
+    :class:`Target` has the same attributes and can be drawn as well.
+    """
+
+    e: float
+    e_err: float
+    a: float
+    a_err: float
+    name: str = "target"
+
+
+def target_point_from_flag(text: str, name: str = "target", flag: str = "--target") -> TargetPoint:
+    """Read ``E,E_ERR,A,A_ERR`` (a in AU) from one flag.
+
+    Raises
+    ------
+    InputError
+        Naming the flag, the value and what is allowed.
+    """
+    parts = [p.strip() for p in str(text).split(",")]
+    if len(parts) != 4:
+        raise InputError(f"{flag} {text!r}: must be E,E_ERR,A,A_ERR (four numbers, a in AU), e.g. 0.9,0.02,9,1.5")
+    e = _number(f"{flag} (E)", parts[0], "in [0, 1)", lambda x: 0.0 <= x < 1.0)
+    e_err = _number(f"{flag} (E_ERR)", parts[1], ">= 0", lambda x: x >= 0)
+    a = _number(f"{flag} (A)", parts[2], "> 0 (AU)", lambda x: x > 0)
+    a_err = _number(f"{flag} (A_ERR)", parts[3], ">= 0 (AU)", lambda x: x >= 0)
+    return TargetPoint(e, e_err, a, a_err, str(name))

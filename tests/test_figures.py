@@ -1,0 +1,203 @@
+"""Tests of the figure set: every file exists and is a valid PDF/PNG of the stated size, and the
+CSV beside it holds the numbers computed directly from the hand-made records."""
+
+import csv
+import math
+
+import matplotlib.image
+import numpy as np
+import pytest
+import scipy.stats
+from PIL import Image
+
+from handmade import planet, system, write_run
+from scatter_pop import cli
+from scatter_pop.outcome import EndReason, Fate
+
+OBSERVED = "tests/data/observed_rv_giants.csv"
+FIGURES = ("e_histogram_by_branch", "e_cdf", "a_e_plane", "branching_ratios", "instability_times",
+           "e_vs_mass_ratio")
+KINDS = ("none", "ejection", "merger", "star")
+
+
+def _two_planet_run():
+    """40 used systems cycling through the four single-kind branches, plus one failed and one
+    capped system (left out).  Returns (records, expected survivors per branch as (e, a, ratio))."""
+    recs, expected, t_enc = [], {k: [] for k in KINDS}, []
+    for i in range(40):
+        kind = KINDS[i % 4]
+        e1, a1 = 0.02 + 0.024 * i, 2.0 + 0.2 * i
+        m1, m2 = 1.0 + 0.1 * i, 2.0
+        if kind == "none":
+            e2, a2 = 0.5 * e1, 15.0
+            ps = [planet(m1, 3.0, a1, e1), planet(m2, 4.0, a2, e2)]
+            expected[kind] += [(e1, a1, min(m1, m2) / max(m1, m2)), (e2, a2, min(m1, m2) / max(m1, m2))]
+        else:
+            fate = {"ejection": Fate.EJECTED, "merger": Fate.MERGED, "star": Fate.HIT_STAR}[kind]
+            ps = [planet(m1, 3.0, a1, e1), planet(m2, 4.0, -30.0 if kind == "ejection" else 1.0,
+                                                  1.2 if kind == "ejection" else 0.9, fate)]
+            expected[kind].append((e1, a1, min(m1, m2) / max(m1, m2)))
+        t = math.nan if kind == "none" else 10.0 ** (2 + 0.05 * i)
+        t_enc.append(t)
+        recs.append(system(i, ps, t_enc=t, reason=EndReason.HILL_STABLE if kind == "none" else
+                           EndReason.ONE_PLANET))
+    recs.append(system(40, [planet(1.0, 3.0, 2.0, 0.99), planet(1.0, 4.0, 3.0, 0.5)], reason=EndReason.FAILED))
+    recs.append(system(41, [planet(1.0, 3.0, 2.0, 0.98), planet(1.0, 4.0, 3.0, 0.5)], reason=EndReason.CAPPED))
+    return recs, expected, t_enc
+
+
+def _three_planet_run():
+    recs, e_all = [], []
+    for i in range(30):
+        e = 0.05 + 0.03 * i
+        # an ejection and a merger: "several"; every fifth system only ejections
+        second = Fate.MERGED if i % 5 else Fate.EJECTED
+        recs.append(system(i, [planet(1.0, 3.0, 3.0 + 0.1 * i, e), planet(1.0, 4.0, -40.0, 1.5, Fate.EJECTED),
+                               planet(0.5, 5.0, 4.0, 0.3, second)], t_enc=50.0 + i))
+        e_all.append(e)
+    return recs, e_all
+
+
+def _read(path):
+    with open(path, newline="") as fh:
+        rows = list(csv.DictReader(fh))
+    return rows
+
+
+def _col(rows, name, cast=float):
+    return np.array([cast(r[name]) for r in rows])
+
+
+@pytest.fixture(scope="module")
+def figure_dir(tmp_path_factory):
+    base = tmp_path_factory.mktemp("figs")
+    recs2, _, _ = _two_planet_run()
+    recs3, _ = _three_planet_run()
+    a = write_run(base / "two", recs2, 2)
+    b = write_run(base / "three", recs3, 3)
+    out = base / "out"
+    code = cli.main(["figures", str(a), str(b), "--observed", OBSERVED, "--target", "0.9,0.02,9,1.5",
+                     "--target-name", "invented b", "--format", "pdf,png", "--out", str(out),
+                     "--permutations", "200"])
+    assert code == 0
+    return out
+
+
+@pytest.mark.parametrize("name", FIGURES)
+def test_each_figure_is_a_valid_pdf_and_png(figure_dir, name):
+    pdf = (figure_dir / f"{name}.pdf").read_bytes()
+    assert pdf.startswith(b"%PDF-") and b"%%EOF" in pdf[-1024:]
+    assert b"/Subtype /Image" not in pdf          # vector: no embedded raster
+    assert b"/FontFile2" in pdf                   # TrueType fonts embedded (pdf.fonttype 42)
+    png = figure_dir / f"{name}.png"
+    assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    assert matplotlib.image.imread(png).ndim == 3
+    with Image.open(png) as im:
+        im.verify()
+    with Image.open(png) as im:
+        width_in = im.size[0] / 300.0
+    # two ensembles: per-ensemble panels at double-column width, single panels at single column
+    expected = 7.1 if name in ("e_histogram_by_branch", "a_e_plane", "e_vs_mass_ratio") else 3.35
+    assert width_in == pytest.approx(expected, abs=2 / 300)
+    assert (figure_dir / f"{name}.csv").is_file()
+
+
+def test_histogram_counts_equal_direct_counts(figure_dir):
+    _, expected, _ = _two_planet_run()
+    rows = _read(figure_dir / "e_histogram_by_branch.csv")
+    bins = np.linspace(0, 1, 21)
+    for kind in KINDS:
+        sub = [r for r in rows if r["ensemble"] == "two" and r["branch"] == kind]
+        counts, _ = np.histogram([e for e, _, _ in expected[kind]], bins=bins)
+        assert _col(sub, "count", int).tolist() == counts.tolist()
+        assert _col(sub, "e_low").tolist() == pytest.approx(bins[:-1].tolist())
+    # the failed and the capped system (e = 0.99, 0.98) are not counted
+    assert sum(int(r["count"]) for r in rows if r["ensemble"] == "two") == 10 * 2 + 30
+    _, e3 = _three_planet_run()
+    several = [r for r in rows if r["ensemble"] == "three" and r["branch"] == "several"]
+    ej_only = [r for r in rows if r["ensemble"] == "three" and r["branch"] == "ejection"]
+    e_several = [e for i, e in enumerate(e3) if i % 5]          # only the innermost planet survives
+    e_ej = [e for i, e in enumerate(e3) if i % 5 == 0]
+    assert _col(several, "count", int).tolist() == np.histogram(e_several, bins)[0].tolist()
+    assert _col(ej_only, "count", int).tolist() == np.histogram(e_ej, bins)[0].tolist()
+
+
+def test_cdf_values_and_statistics(figure_dir):
+    rows = _read(figure_dir / "e_cdf.csv")
+    # the observed CDF, from the catalogue read here directly (rows with e > 0: exact zeros
+    # are fixed circular fits, left out by default — common practice, REFERENCES.md)
+    with open(OBSERVED, newline="") as fh:
+        obs = np.sort([float(r["e"]) for r in csv.DictReader(fh) if r["e"] and float(r["e"]) > 0])
+    o = [r for r in rows if r["sample"] == "observed"]
+    assert _col(o, "e").tolist() == pytest.approx(obs.tolist())
+    assert _col(o, "cdf").tolist() == pytest.approx((np.arange(1, obs.size + 1) / obs.size).tolist())
+    # simulated: the survivors' e of the used systems (no cuts given)
+    _, expected, _ = _two_planet_run()
+    sim = np.sort([e for k in KINDS for e, _, _ in expected[k]])
+    s = [r for r in rows if r["sample"] == "two"]
+    assert _col(s, "e").tolist() == pytest.approx(sim.tolist())
+    assert _col(s, "cdf")[-1] == 1.0
+    # legend numbers: KS from scipy.stats.ks_2samp (reference library)
+    stats = {r["sample"]: r for r in _read(figure_dir / "e_cdf_stats.csv")}
+    ks = scipy.stats.ks_2samp(sim, obs)
+    assert float(stats["two"]["ks_d"]) == pytest.approx(ks.statistic, rel=1e-12)
+    assert float(stats["two"]["ks_p"]) == pytest.approx(ks.pvalue, rel=1e-9)
+    assert int(stats["two"]["n_obs"]) == obs.size == 602      # REFERENCES.md: 602 rows with e > 0
+
+
+def test_branching_ratios_equal_counts_and_binomial_intervals(figure_dir):
+    rows = {(r["ensemble"], r["branch"]): r for r in _read(figure_dir / "branching_ratios.csv")}
+    for kind in KINDS:
+        r = rows[("two", kind)]
+        assert (int(r["k"]), int(r["n"])) == (10, 40)
+        assert float(r["fraction"]) == 0.25
+        # Clopper & Pearson 1934 via scipy.stats.binomtest (reference library)
+        ci = scipy.stats.binomtest(10, 40).proportion_ci(method="exact")
+        assert (float(r["low"]), float(r["high"])) == pytest.approx((ci.low, ci.high), rel=1e-12)
+    assert (int(rows[("three", "several")]["k"]), int(rows[("three", "ejection")]["k"])) == (24, 6)
+    assert int(rows[("two", "several")]["k"]) == 0
+
+
+def test_instability_cdf_and_a_e_and_mass_ratio(figure_dir):
+    _, expected, t_enc = _two_planet_run()
+    rows = [r for r in _read(figure_dir / "instability_times.csv") if r["ensemble"] == "two"]
+    t = np.sort([x for x in t_enc if math.isfinite(x)])
+    assert _col(rows, "t_yr").tolist() == pytest.approx(t.tolist())
+    assert _col(rows, "cdf").tolist() == pytest.approx((np.arange(1, t.size + 1) / 40).tolist())
+    ae = [r for r in _read(figure_dir / "a_e_plane.csv") if r["ensemble"] == "two"]
+    direct = sorted((a, e) for k in KINDS for e, a, _ in expected[k])
+    assert np.allclose(sorted(zip(_col(ae, "a_au"), _col(ae, "e"))), direct, rtol=1e-12, atol=0)
+    lines = _read(figure_dir / "a_e_plane_lines.csv")
+    q, a, e = _col(lines, "q_au"), _col(lines, "a_au"), _col(lines, "e")
+    assert np.allclose(a * (1 - e), q)                          # pericentre q = a(1 - e)
+    target = _read(figure_dir / "a_e_plane_target.csv")[0]
+    assert (target["name"], float(target["a_au"]), float(target["e_err"])) == ("invented b", 9.0, 0.02)
+    mr = [r for r in _read(figure_dir / "e_vs_mass_ratio.csv") if r["ensemble"] == "two"]
+    direct = sorted((ratio, e) for k in KINDS for e, _, ratio in expected[k])
+    assert np.allclose(sorted(zip(_col(mr, "mass_ratio"), _col(mr, "e"))), direct, rtol=1e-12, atol=0)
+
+
+def test_single_column_width(tmp_path):
+    recs, _, _ = _two_planet_run()
+    run = write_run(tmp_path / "one", recs, 2)
+    assert cli.main(["figures", str(run), "--format", "png", "--out", str(tmp_path / "f")]) == 0
+    for name in FIGURES:
+        with Image.open(tmp_path / "f" / f"{name}.png") as im:
+            assert im.size[0] / 300 == pytest.approx(3.35, abs=2 / 300)
+    assert (tmp_path / "f" / "outcomes_table.tex").is_file()
+    assert not (tmp_path / "f" / "e_cdf_stats.csv").exists()     # no catalogue, no statistics
+
+
+@pytest.mark.parametrize("extra, flag", [
+    (["--format", "gif"], "--format"), (["--target", "1.2,0.1,9,1"], "--target"),
+    (["--target", "0.9,0.1,9"], "--target"), (["--target", "0.9,-0.1,9,1"], "--target"),
+    (["--labels", "a,b"], "--labels"), (["--a-range", "5,1"], "--a-range"),
+    (["--observed", "tests/data/nowhere.csv"], "nowhere"),
+])
+def test_figures_bad_flags(tmp_path, capsys, extra, flag):
+    recs, _, _ = _two_planet_run()
+    run = write_run(tmp_path / "one", recs, 2)
+    code = cli.main(["figures", str(run), "--out", str(tmp_path / "f"), *extra])
+    err = capsys.readouterr().err
+    assert code == 2 and len(err.strip().splitlines()) == 1 and flag in err
+    assert not (tmp_path / "f").exists()                         # nothing written
