@@ -171,8 +171,8 @@ def survivor_table(ds: xr.Dataset, *, rng, project_sin_i: bool = True, star_mass
         target = np.exp(np.log(rescale_a.low) + scale_rng.random(ns)
                         * (np.log(rescale_a.high) - np.log(rescale_a.low)))
         a0 = ds["a_initial"].values
-        inner = np.nanmin(np.where(a0 > 0, a0, np.nan), axis=1) if a0.size else np.ones(ns)
-        scale = target / inner
+        inner = np.min(np.where(a0 > 0, a0, np.inf), axis=1)   # systems without planets: inf
+        scale = np.where(np.isfinite(inner), target / inner, np.nan)
     sin_i_all = _sky_sin_i(ds["inc_final"].values, ds["node_final"].values, los_rng)
     keep = survivor_mask(ds, energy_tolerance=energy_tolerance, include_capped=include_capped).values
     a_fin, e_fin = ds["a_final"].values, ds["e_final"].values

@@ -1,6 +1,7 @@
 """Tests of scatter_pop.simulated: survivors seen through an RV survey."""
 
 import math
+import warnings
 
 import numpy as np
 import pytest
@@ -79,6 +80,10 @@ def test_quality_cuts_counted():
     assert [(s.key, s.n) for s in sample.log.steps] == [
         ("systems", 6), ("systems_kept", 2), ("survivors", 3), ("bound", 3)]
     assert len(survivor_table(ds, rng=0, energy_tolerance=1e-2)["e"]) == 4
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")             # failed systems must not upset the rescaling
+        t = survivor_table(ds, rng=0, rescale_a=Range(2.0, 2.0))
+    assert np.allclose(t["a"], [2.0, 2.0, 6.0])         # inner planets (initially 1 AU) land at 2 AU
 
 
 def test_cuts_and_rv_survey_forward_model():
