@@ -277,7 +277,8 @@ class OneSampleResult:
         One-sample KS distance and its exact p-value.
     ad_statistic, ad_pvalue : float
         One-sample A² and its Monte-Carlo p-value (never below
-        ``1 / (samples + 1)``).
+        ``1 / (samples + 1)``); A² = inf and p = 0 when a value lies where the
+        law's CDF is 0 or 1 (e.g. an exact e = 0), which the law cannot produce.
     n : int
         Sample size.
     """
@@ -307,12 +308,18 @@ def one_sample(x, reference: str, *, samples: int = 2000, rng=None) -> OneSample
     x = _finite(x, "x")
     u = dist.cdf(x)
     ks = scipy.stats.kstest(u, "uniform", method="auto")
-    ad = scipy.stats.goodness_of_fit(
-        scipy.stats.uniform, u, known_params={"loc": 0.0, "scale": 1.0}, statistic="ad",
-        n_mc_samples=int(samples), rng=np.random.default_rng(rng))
+    if np.any((u <= 0.0) | (u >= 1.0)):
+        # a value at F = 0 or 1 (e.g. an exact e = 0; both laws have F(0) = 0): the A^2
+        # integrand diverges, A^2 is infinite and the sample is impossible under the law
+        ad_stat, ad_p = math.inf, 0.0
+    else:
+        ad = scipy.stats.goodness_of_fit(
+            scipy.stats.uniform, u, known_params={"loc": 0.0, "scale": 1.0}, statistic="ad",
+            n_mc_samples=int(samples), rng=np.random.default_rng(rng))
+        ad_stat, ad_p = float(ad.statistic), float(ad.pvalue)
     return OneSampleResult(reference=reference, ks_statistic=float(ks.statistic),
-                           ks_pvalue=float(ks.pvalue), ad_statistic=float(ad.statistic),
-                           ad_pvalue=float(ad.pvalue), n=int(x.size))
+                           ks_pvalue=float(ks.pvalue), ad_statistic=ad_stat, ad_pvalue=ad_p,
+                           n=int(x.size))
 
 
 def fit_beta(x) -> tuple[float, float]:
