@@ -368,11 +368,8 @@ def parse_spec(text: str, source: str = "<spec>") -> EnsembleSpec:
     cluster_table = doc.get("cluster", {})
     if not isinstance(cluster_table, dict):
         raise InputError(f"cluster = {_show(cluster_table)}: must be a table [cluster]")
-    try:  # TODO(lead): plain import once scatter_pop/cluster.py lands
-        from .cluster import ClusterConfig   # the cluster table is checked by its own module
-        cluster = ClusterConfig.from_table(cluster_table)
-    except ImportError:
-        cluster = cluster_table
+    from .cluster import ClusterConfig   # the cluster table is checked by its own module
+    cluster = ClusterConfig.from_table(cluster_table)
     return EnsembleSpec(run, star, planets, integration, outcomes, cluster, text=text, source=source)
 
 
