@@ -18,7 +18,7 @@ from .errors import InputError
 from .observed import ColumnMap, load_catalogue
 from .report_tables import FORMATS, render
 from .schema import ENERGY_TOLERANCE_DEFAULT
-from .simulated import RVSurvey
+from .simulated import TIDAL_CHOICES, RVSurvey
 from .statistics import REFERENCE_DISTRIBUTIONS
 
 __all__ = ["configure", "execute"]
@@ -48,6 +48,9 @@ def configure(parser) -> None:
                         help="rescale each system so its initial inner a is log-uniform in [LOW, HIGH] AU")
     parser.add_argument("--star-mass", metavar="MSUN", help="stellar mass of the ensembles [M_sun], "
                         "if the datasets do not record it")
+    parser.add_argument("--tidal", default="keep", metavar="WHAT",
+                        help="tidal-circularisation candidates: keep (default), drop, or circularise "
+                             "(a -> a(1-e^2), e -> 0)")
     parser.add_argument("--pool", action="store_true", help="add a row pooling all DIRs")
     parser.add_argument("--energy-tolerance", default=str(ENERGY_TOLERANCE_DEFAULT), metavar="DE",
                         help="largest accepted |dE/E| (default %(default)s)")
@@ -137,6 +140,8 @@ def _options(args):
         star_mass = _number(args.star_mass, "--star-mass", "a stellar mass in M_sun, e.g. 1.0")
         if star_mass <= 0:
             raise InputError(f"--star-mass = {args.star_mass!r}: must be > 0 M_sun")
+    if args.tidal not in TIDAL_CHOICES:
+        raise InputError(f"--tidal = {args.tidal!r}: allowed: {', '.join(TIDAL_CHOICES)}")
     tol = _number(args.energy_tolerance, "--energy-tolerance", "a number > 0, e.g. 1e-4")
     if tol <= 0:
         raise InputError(f"--energy-tolerance = {args.energy_tolerance!r}: must be > 0")
@@ -147,7 +152,7 @@ def _options(args):
             raise InputError(f"--references: {r!r} unknown; allowed: {', '.join(REFERENCE_DISTRIBUTIONS)} or none")
     return CompareOptions(
         cuts=cuts, survey=survey, project_sin_i=not args.true_mass, rescale_a=rescale, star_mass=star_mass,
-        energy_tolerance=tol, include_capped=args.include_capped,
+        energy_tolerance=tol, include_capped=args.include_capped, tidal=args.tidal,
         permutations=_integer(args.permutations, "--permutations", 1),
         uncertainty_draws=_integer(args.error_draws, "--error-draws", 0),
         bootstrap_draws=_integer(args.bootstrap, "--bootstrap", 0),

@@ -55,6 +55,8 @@ class CompareOptions:
         Largest accepted |dE/E|.
     include_capped : bool
         Keep systems stopped by the wall-clock cap.
+    tidal : str
+        Tidal-circularisation candidates: "keep", "drop" or "circularise".
     permutations : int
         Permutations of the main Anderson–Darling p-value.
     uncertainty_draws, bootstrap_draws : int
@@ -76,6 +78,7 @@ class CompareOptions:
     star_mass: float | None = None
     energy_tolerance: float = ENERGY_TOLERANCE_DEFAULT
     include_capped: bool = False
+    tidal: str = "keep"
     permutations: int = 2000
     uncertainty_draws: int = 100
     bootstrap_draws: int = 100
@@ -178,7 +181,7 @@ def compare(samples, observed: ObservedSample, options: CompareOptions = Compare
             datasets, rng=g_draw, label=label, cuts=options.cuts, survey=options.survey,
             project_sin_i=options.project_sin_i, star_mass=options.star_mass,
             energy_tolerance=options.energy_tolerance, include_capped=options.include_capped,
-            rescale_a=options.rescale_a)
+            rescale_a=options.rescale_a, tidal=options.tidal)
         if sample.n < 2:
             steps = "; ".join(f"{s.label}: {s.n}" for s in sample.log.steps)
             raise InputError(f"{label}: {sample.n} simulated planets left after the cuts, at least 2 "

@@ -7,7 +7,7 @@ converted here, once, to AU, yr and M_sun.
 
 Rules
 -----
-* Blank cells are missing values.  A row missing its eccentricity is dropped
+* Blank cells (or nan, NA, N/A, null, none) are missing values.  A row missing its eccentricity is dropped
   and counted; a row missing a value that a cut needs is dropped by that cut
   and counted.
 * Exact ``e = 0`` entries are usually fits with the orbit fixed circular,
@@ -126,6 +126,9 @@ class ObservedSample:
         return int(np.count_nonzero((np.nan_to_num(self.e_err_lo) + np.nan_to_num(self.e_err_hi)) > 0))
 
 
+_MISSING = {"nan", "na", "n/a", "null", "none"}     # spellings of a missing value
+
+
 def _read_rows(path: Path) -> tuple[list[str], list[dict], list[int]]:
     try:
         with path.open(newline="", encoding="utf-8") as fh:
@@ -150,14 +153,14 @@ def _column(rows, lines, column: str, path: Path, *, lower=None, upper=None, str
     out = np.full(len(rows), np.nan)
     for i, (row, line) in enumerate(zip(rows, lines)):
         text = (row.get(column) or "").strip()
-        if not text:
+        if not text or text.lower() in _MISSING:
             continue
         try:
             value = float(text)
         except ValueError:
             raise InputError(f"catalogue {path.name}, column {column!r}, line {line}: {text!r} is not a "
                              f"number (blank for a missing value)") from None
-        if np.isnan(value) or np.isinf(value):
+        if not np.isfinite(value):
             raise InputError(f"catalogue {path.name}, column {column!r}, line {line}: {text!r} is not a "
                              f"finite number (blank for a missing value)")
         if magnitude:

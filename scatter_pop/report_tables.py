@@ -92,7 +92,7 @@ def report_to_dict(report: ComparisonReport) -> dict:
             "project_sin_i": o.project_sin_i,
             "rescale_a_au": None if o.rescale_a is None else [o.rescale_a.low, o.rescale_a.high],
             "star_mass_msun": o.star_mass, "energy_tolerance": o.energy_tolerance,
-            "include_capped": o.include_capped, "permutations": o.permutations,
+            "include_capped": o.include_capped, "tidal": o.tidal, "permutations": o.permutations,
             "uncertainty_draws": o.uncertainty_draws, "bootstrap_draws": o.bootstrap_draws,
             "spread_permutations": o.spread_permutations, "reference_samples": o.reference_samples,
             "seed": o.seed,

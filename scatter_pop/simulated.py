@@ -38,7 +38,9 @@ from .radial_velocity import isotropic_sin_i, orbital_period, semi_amplitude
 from .schema import ENERGY_TOLERANCE_DEFAULT, quality_mask, survivor_mask
 
 __all__ = ["RVSurvey", "SimulatedSample", "ensemble_star_mass", "quality_counts", "survivor_table",
-           "simulated_sample", "RESCALE_NOTE"]
+           "simulated_sample", "RESCALE_NOTE", "TIDAL_CHOICES"]
+
+TIDAL_CHOICES = ("keep", "drop", "circularise")
 
 RESCALE_NOTE = ("orbits rescaled in semi-major axis: point-mass dynamics is scale-free, but the "
                 "physical radii (planet-planet mergers, star collisions, tidal disruption) were "
@@ -131,7 +133,7 @@ def _sky_sin_i(inc: np.ndarray, node: np.ndarray, rng) -> np.ndarray:
 
 def survivor_table(ds: xr.Dataset, *, rng, project_sin_i: bool = True, star_mass: float | None = None,
                    energy_tolerance: float = ENERGY_TOLERANCE_DEFAULT, include_capped: bool = False,
-                   rescale_a: Range | None = None) -> dict[str, np.ndarray]:
+                   rescale_a: Range | None = None, circularise_tidal: bool = False) -> dict[str, np.ndarray]:
     """Surviving, bound planets of the systems that pass the quality cuts.
 
     Parameters
@@ -153,6 +155,10 @@ def survivor_table(ds: xr.Dataset, *, rng, project_sin_i: bool = True, star_mass
         Target range [AU] of each system's initial innermost semi-major axis:
         a system is scaled by a_target / a_inner with a_target drawn
         log-uniformly in the range (a fixed factor when low == high).
+    circularise_tidal : bool
+        Replace the orbits of tidal-circularisation candidates (``tidal_candidate``)
+        by the circular orbit of equal angular momentum, a = a(1 − e²), e = 0
+        (Ford & Rasio 2006: a_final ≈ 2q for e → 1).
 
     Returns
     -------
@@ -160,7 +166,8 @@ def survivor_table(ds: xr.Dataset, *, rng, project_sin_i: bool = True, star_mass
         One entry per surviving bound planet: ``system``, ``planet``,
         ``mass`` [M_sun], ``sin_i``, ``msini`` [M_sun], ``a`` [AU], ``e``,
         ``q`` [AU], ``inc`` [rad, to the initial reference plane], ``period``
-        [yr], ``K`` [m/s], ``m_star`` [M_sun], ``scale`` (rescaling factor).
+        [yr], ``K`` [m/s], ``m_star`` [M_sun], ``scale`` (rescaling factor),
+        ``tidal`` (bool: tidal-circularisation candidate).
     """
     rng = np.random.default_rng(rng)
     los_rng, scale_rng = rng.spawn(2)
@@ -183,14 +190,20 @@ def survivor_table(ds: xr.Dataset, *, rng, project_sin_i: bool = True, star_mass
     f = scale[si]
     a = a_fin[si, pj] * f
     e = e_fin[si, pj]
+    q = ds["q_final"].values[si, pj] * f
+    tidal = ds["tidal_candidate"].values[si, pj] == 1
+    if circularise_tidal:
+        a = np.where(tidal, a * (1.0 - e * e), a)
+        q = np.where(tidal, a, q)
+        e = np.where(tidal, 0.0, e)
     period = orbital_period(a, m_star, mass)
     proj = sin_i if project_sin_i else np.ones_like(sin_i)
     return {
         "system": ds["system"].values[si].astype(np.int64), "planet": pj.astype(np.int64),
         "mass": mass, "sin_i": sin_i, "msini": mass * proj, "a": a, "e": e,
-        "q": ds["q_final"].values[si, pj] * f, "inc": ds["inc_final"].values[si, pj],
+        "q": q, "inc": ds["inc_final"].values[si, pj],
         "period": np.asarray(period, dtype=float), "K": np.asarray(semi_amplitude(mass, period, e, m_star, proj)),
-        "m_star": np.full(si.size, m_star), "scale": f,
+        "m_star": np.full(si.size, m_star), "scale": f, "tidal": tidal,
     }
 
 
@@ -231,7 +244,8 @@ class SimulatedSample:
 def simulated_sample(datasets, *, rng, label: str = "simulated", cuts: SampleCuts = SampleCuts(),
                      survey: RVSurvey | None = None, project_sin_i: bool = True,
                      star_mass: float | None = None, energy_tolerance: float = ENERGY_TOLERANCE_DEFAULT,
-                     include_capped: bool = False, rescale_a: Range | None = None) -> SimulatedSample:
+                     include_capped: bool = False, rescale_a: Range | None = None,
+                     tidal: str = "keep") -> SimulatedSample:
     """Survivors of one or more ensembles, cut and seen through an RV survey.
 
     Parameters
@@ -247,7 +261,13 @@ def simulated_sample(datasets, *, rng, label: str = "simulated", cuts: SampleCut
         Keep only planets with K >= k_min and P <= baseline.
     project_sin_i, star_mass, energy_tolerance, include_capped, rescale_a
         As in :func:`survivor_table`.
+    tidal : {"keep", "drop", "circularise"}
+        What to do with tidal-circularisation candidates (survivors whose
+        pericentre is below the spec's threshold): keep their orbits, leave
+        them out (counted), or circularise them at constant angular momentum.
     """
+    if tidal not in TIDAL_CHOICES:
+        raise ValueError(f"tidal must be one of {', '.join(TIDAL_CHOICES)}, got {tidal!r}")
     if isinstance(datasets, xr.Dataset):
         datasets = [datasets]
     datasets = list(datasets)
@@ -258,7 +278,7 @@ def simulated_sample(datasets, *, rng, label: str = "simulated", cuts: SampleCut
     for i, ds in enumerate(datasets):
         t = survivor_table(ds, rng=rng, project_sin_i=project_sin_i, star_mass=star_mass,
                            energy_tolerance=energy_tolerance, include_capped=include_capped,
-                           rescale_a=rescale_a)
+                           rescale_a=rescale_a, circularise_tidal=tidal == "circularise")
         t["ensemble"] = np.full(t["e"].size, i, dtype=np.int64)
         tables.append(t)
         for k, v in quality_counts(ds, energy_tolerance=energy_tolerance,
@@ -273,6 +293,10 @@ def simulated_sample(datasets, *, rng, label: str = "simulated", cuts: SampleCut
     log.record("survivors", "surviving planets of kept systems", n_survivors)
     keep = np.ones(table["e"].size, dtype=bool)
     log.record("bound", "bound survivors (a > 0, e < 1)", int(keep.sum()))
+    if tidal == "drop":
+        keep &= ~table["tidal"]
+        log.record("not_tidal", "not tidal-circularisation candidates", int(keep.sum()))
+
     mass_column = "msini" if project_sin_i else "mass"
     for name, values in (("a", table["a"]), ("period", table["period"]), ("mass", table[mass_column])):
         scale, unit = {"a": (1.0, "AU"), "period": (YEAR_S / DAY_S, "d"), "mass": (1.0 / MJUP_MSUN, "M_J")}[name]
@@ -283,5 +307,8 @@ def simulated_sample(datasets, *, rng, label: str = "simulated", cuts: SampleCut
         log.record("rv_detectable", f"RV-detectable (K >= {survey.k_min:g} m/s, "
                    f"P <= {survey.baseline:g} yr)", int(keep.sum()))
     notes = (RESCALE_NOTE,) if rescale_a is not None else ()
+    if tidal == "circularise":
+        notes += (f"{int(table['tidal'].sum())} tidal-circularisation candidates given the circular orbit "
+                  "of equal angular momentum (a -> a(1 - e^2), e -> 0) before the cuts",)
     return SimulatedSample(label=label, table={k: v[keep] for k, v in table.items()}, log=log,
                            excluded=excluded, notes=notes)

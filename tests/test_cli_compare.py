@@ -81,6 +81,7 @@ BAD_FLAGS = [
     (["--columns", "ecc"], "--columns"),
     (["--energy-tolerance=-1"], "--energy-tolerance"),
     (["--seed=-3"], "--seed"),
+    (["--tidal", "melt"], "--tidal"),
 ]
 
 

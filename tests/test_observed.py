@@ -124,10 +124,13 @@ def test_non_numeric_and_out_of_range_e(tmp_path):
     p = _write(tmp_path, [HEADER, "1,-0.1,,,1,365,1,msini,0,1,star,2000"])
     with pytest.raises(InputError):
         load_catalogue(p)
+    p = _write(tmp_path, [HEADER, "1,0.1,,,inf,365,1,msini,0,1,star,2000"])
+    with pytest.raises(InputError, match="'a_au'.*finite"):
+        load_catalogue(p)
 
 
 def test_empty_after_cuts_and_missing_values_counted(tmp_path):
-    p = _write(tmp_path, [HEADER, "1,0.2,,,1,365,1,msini,0,1,star,2000", "2,,,,1,365,1,msini,0,1,star,2000",
+    p = _write(tmp_path, [HEADER, "1,0.2,,,1,365,1,msini,0,1,star,2000", "2,NaN,,,1,365,1,msini,0,1,star,2000",
                           "3,0.0,,,1,365,1,msini,0,1,star,2000"])
     obs = load_catalogue(p)
     assert obs.log.as_dict() == {"read": 3, "e_known": 2, "e_nonzero": 1}

@@ -147,3 +147,22 @@ def test_unbound_or_removed_planets_never_enter():
               system(1, [planet(2.0, 1.0, 0.3), planet(1.0, -3.0, 1.1)])])   # "survivor" unbound
     t = survivor_table(ds, rng=0)
     assert t["system"].tolist() == [0, 1] and np.all(t["e"] < 1)
+
+
+def test_tidal_candidates_keep_drop_circularise():
+    # circularisation at constant orbital angular momentum: a_c = a(1 - e^2), e -> 0
+    # (Ford & Rasio 2006, ApJ 638, L45: a_final ~ 2q for e -> 1)
+    import dataclasses
+    hot = dataclasses.replace(planet(2.0, 1.0, 0.97), tidal_candidate=True)
+    ds = _ds([system(0, [hot]), system(1, [planet(2.0, 1.0, 0.5)])], n_planets=1)
+    t = survivor_table(ds, rng=0, circularise_tidal=True)
+    assert t["tidal"].tolist() == [True, False]
+    assert t["a"][0] == pytest.approx(1.0 * (1 - 0.97**2)) and t["e"][0] == 0.0
+    assert t["a"][0] == pytest.approx(2 * 0.03, rel=0.02)          # ~ 2q
+    assert t["a"][1] == 1.0 and t["e"][1] == 0.5
+    drop = simulated_sample(ds, rng=0, tidal="drop")
+    assert drop.log.as_dict()["not_tidal"] == 1 and drop.e.tolist() == [0.5]
+    circ = simulated_sample(ds, rng=0, tidal="circularise")
+    assert circ.n == 2 and "1 tidal-circularisation" in circ.notes[0]
+    with pytest.raises(ValueError, match="tidal"):
+        simulated_sample(ds, rng=0, tidal="melt")
