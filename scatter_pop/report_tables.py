@@ -17,7 +17,7 @@ from dataclasses import asdict
 from .compare import ComparisonReport
 from .constants import DAY_S, MJUP_MSUN, YEAR_S
 from .resampling import ResampledComparison
-from .statistics import REFERENCE_DISTRIBUTIONS
+from .statistics import REFERENCE_DISTRIBUTIONS, ks_critical_value
 
 __all__ = ["FORMATS", "render", "report_to_dict"]
 
@@ -79,6 +79,7 @@ def report_to_dict(report: ComparisonReport) -> dict:
             "counts": [asdict(s) for s in r.sample.log.steps], "systems_excluded": r.sample.excluded,
             "notes": list(r.sample.notes), "summary": r.summary, "test": asdict(r.test),
             "ad_pvalue_resolution": 1.0 / (r.test.permutations + 1),
+            "ks_critical_value_0.05": ks_critical_value(0.05, r.test.n_x, r.test.n_y),
             "observed_uncertainty": _spread_dict(r.uncertainty), "simulated_bootstrap": _spread_dict(r.bootstrap),
             "references": [asdict(x) for x in r.references],
         } for r in report.rows],
@@ -149,7 +150,8 @@ def _text(report: ComparisonReport) -> str:
     for r in report.rows:
         t, res = r.test, 1.0 / (r.test.permutations + 1)
         out.append(f"  {r.sample.label}: N_sim = {t.n_x}, N_obs = {t.n_y}")
-        out.append(f"    KS  D = {t.ks_statistic:.4f}   p = {_p(t.ks_pvalue)}   errors: "
+        out.append(f"    KS  D = {t.ks_statistic:.4f} (asymptotic D at 5 %: "
+                   f"{ks_critical_value(0.05, t.n_x, t.n_y):.4f})   p = {_p(t.ks_pvalue)}   errors: "
                    f"{_range(r.uncertainty, 'ks_pvalue')}   bootstrap: {_range(r.bootstrap, 'ks_pvalue')}")
         sres = 1.0 / (report.options.spread_permutations + 1)
         out.append(f"    AD  T = {t.ad_statistic:.4f}   p = {_p(t.ad_pvalue, res)}   errors: "

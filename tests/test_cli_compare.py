@@ -133,3 +133,54 @@ def test_missing_observed_file(runs, capsys, tmp_path):
     two, _ = runs
     code, _, err = _run(capsys, [str(two), "--observed", str(tmp_path / "none.csv")])
     assert code == 2 and "does not exist" in err
+
+
+RUN_SPEC = """\
+# invented test ensemble: two giant planets around a 0.9 M_sun star
+[run]
+name = "cmp"
+seed = 7
+systems = 60
+
+[star]
+mass = 0.9
+
+[planets]
+count = 2
+mass = 2.0
+a_inner = 2.0
+spacing = 3.0
+
+[integration]
+end_time = 1000.0
+"""
+
+
+def test_real_run_folder_incomplete_then_partial(capsys, tmp_path):
+    # a run folder as the ensemble store writes it: spec file plus part files; 40 of 60 systems
+    from scatter_pop.spec import parse_spec
+    from scatter_pop.store import prepare_folder
+    spec = parse_spec(RUN_SPEC)
+    folder = prepare_folder(spec, tmp_path / "run", log=lambda *a: None)
+    folder.path.mkdir(parents=True)
+    folder.spec_path.write_text(spec.text)
+    ds = random_ensemble(40, 5, lambda r: r.beta(1.0, 3.0))
+    del ds.attrs["star_mass"]                       # the star mass must come from the stored spec
+    folder.write_part(ds.isel(system=slice(0, 20)), spec)
+    folder.write_part(ds.isel(system=slice(20, 40)), spec)
+    code, _, err = _run(capsys, [str(folder.path), "--observed", str(DATA), *FAST])
+    assert code == 2 and "incomplete (40/60 systems)" in err and len(err.strip().splitlines()) == 1
+    code, out, err = _run(capsys, [str(folder.path), "--observed", str(DATA), "--partial", "--format", "json",
+                                   *FAST])
+    assert code == 0, err
+    doc = json.loads(out)
+    counts = {c["key"]: c["n"] for c in doc["samples"][0]["counts"]}
+    assert counts["systems"] == 40 and counts["survivors"] == 40
+    # K used the stored spec's 0.9 M_sun star: compare with radial_velocity for one planet
+    from scatter_pop.simulated import survivor_table
+    from scatter_pop.compare import load_ensemble
+    from scatter_pop import radial_velocity as rv
+    t = survivor_table(load_ensemble(folder.path, partial=True), rng=0)
+    assert t["m_star"][0] == 0.9
+    assert t["K"][0] == pytest.approx(rv.semi_amplitude_from_a(t["mass"][0], t["a"][0], t["e"][0], 0.9,
+                                                                t["sin_i"][0]))

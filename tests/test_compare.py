@@ -97,6 +97,9 @@ def test_every_format_renders_the_same_numbers(setup):
     assert {r["against"] for r in rows if r["test"] == "one_sample"} == {"beta_kipping2013", "rayleigh_jt2008"}
     doc = json.loads(render(rep, "json"))
     assert doc["samples"][0]["test"]["ks_pvalue"] == t.ks_pvalue
+    # c(0.05) sqrt((n+m)/(nm)) with c(0.05) = 1.3581 (asymptotic KS, REFERENCES.md)
+    assert doc["samples"][0]["ks_critical_value_0.05"] == pytest.approx(
+        1.3581 * ((t.n_x + t.n_y) / (t.n_x * t.n_y)) ** 0.5, rel=1e-4)
     assert doc["observed"]["counts"][0] == {"key": "read", "label": "rows read", "n": 250}
     tex = render(rep, "latex")
     for word in (r"\toprule", r"\midrule", r"\bottomrule", r"two\_planet", r"three\_planet"):
