@@ -43,7 +43,7 @@ from .constants import G_AU_YR_MSUN
 from .errors import InputError
 
 __all__ = ["InitialSystem", "system_seed", "system_rng", "draw_system", "spaced_semi_major_axes",
-           "DRAW_ORDER"]
+           "true_anomaly", "DRAW_ORDER"]
 
 DRAW_ORDER = ("mass", "spacing", "e", "inc", "omega", "node", "mean_anomaly")
 
@@ -86,9 +86,44 @@ class InitialSystem:
         return len(self.mass)
 
     def inner_period(self) -> float:
-        """Astrocentric orbital period of the innermost planet (yr)."""
-        i = int(np.argmin(self.a))
+        """Astrocentric orbital period of the innermost bound planet (yr)."""
+        bound = [k for k in range(self.count) if self.a[k] > 0.0]
+        if not bound:
+            raise InputError("initial system: no planet on a bound orbit (every a <= 0); "
+                             "the inner period sets the time unit and needs one")
+        i = min(bound, key=lambda k: self.a[k])
         return 2.0 * math.pi * math.sqrt(self.a[i] ** 3 / (G_AU_YR_MSUN * (self.star_mass + self.mass[i])))
+
+
+def true_anomaly(mean_anomaly: float, e: float) -> float:
+    """True anomaly (rad) from the mean anomaly (rad) by Kepler's equation.
+
+    Elliptic (e < 1): E - e sin E = M; hyperbolic (e > 1): e sinh F - F = M;
+    parabolic (e = 1): Barker's equation M = D + D^3/3, D = tan(f/2).  Solved
+    here because REBOUND 5.2.2 returns NaN positions for a hyperbolic orbit
+    given M = 0.
+    """
+    m = float(mean_anomaly)
+    if e < 1.0:
+        m = math.remainder(m, 2.0 * math.pi)
+        big = m + e * math.sin(m) if e < 0.8 else math.copysign(math.pi, m) if m else 0.0
+        for _ in range(100):
+            step = (big - e * math.sin(big) - m) / (1.0 - e * math.cos(big))
+            big -= step
+            if abs(step) < 1e-15:
+                break
+        return 2.0 * math.atan2(math.sqrt(1.0 + e) * math.sin(0.5 * big), math.sqrt(1.0 - e) * math.cos(0.5 * big))
+    if e == 1.0:
+        w = 1.5 * m
+        y = math.cbrt(w + math.sqrt(w * w + 1.0))
+        return 2.0 * math.atan(y - 1.0 / y)
+    big = math.asinh(m / e)
+    for _ in range(200):
+        step = (e * math.sinh(big) - big - m) / (e * math.cosh(big) - 1.0)
+        big -= step
+        if abs(step) < 1e-15 * max(1.0, abs(big)):
+            break
+    return 2.0 * math.atan(math.sqrt((e + 1.0) / (e - 1.0)) * math.tanh(0.5 * big))
 
 
 def system_seed(run_seed: int, index: int) -> int:

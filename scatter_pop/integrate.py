@@ -1,0 +1,413 @@
+"""Integrate one system through its close encounters to a classified outcome.
+
+The only module that imports REBOUND.  Flow: initial conditions -> a REBOUND
+simulation (astrocentric elements, centre-of-mass frame, ``sim.G`` set to the
+IAU value) -> integration in chunks of ``check_orbits`` initial inner orbits
+(``exact_finish_time = 0``: a chunk ends on the first step past its end time,
+so the trajectory does not depend on where chunks end) -> between chunks: the
+stopping rules, the hybrid step, the escape radius -> an outcome record.
+
+Events inside a step come through REBOUND's collision search with a Python
+resolve function (called only when some pair is inside its search radius, not
+every step), which looks at each listed pair and decides:
+
+* planet-planet: a merger when the pair's path over the last step (straight
+  line, as REBOUND's ``"line"`` search) came within R_1 + R_2; merged by
+  ``reb_collision_resolve_merge`` (mass, momentum and volume conserved; the
+  lower index survives).  Until the first close encounter the planets' search
+  radii are enlarged so that every pair inside one mutual Hill radius at the
+  end of a step is listed; the end of the first such step is the
+  first-encounter time (the separation is sampled at every step end:
+  resolution one integrator step, IAS15 takes ~40-100 per inner orbit).
+* star-planet: the star's search radius makes every planet within its own
+  end distance max(R* + R_p, eta r_t) listed while near pericentre; the
+  two-body pericentre q of that passage decides: q < R* + R_p -> hit the star,
+  q < eta R_p (M*/M_p)^(1/3) -> tidally disrupted (merged into the star), else
+  nothing.  A single passage inside the limit is caught.
+* ejection: ``exit_max_distance`` = the ejection distance (from the centre of
+  mass: ``move_to_com`` after every removal); when REBOUND raises ``Escape`` a
+  planet beyond it that is unbound from the rest of the system is removed; a
+  bound one is kept and the escape radius raised above its apocentre until it
+  returns inside the ejection distance.
+
+Every merger and removal is booked by hand in the ledger (exact energy and
+angular-momentum jumps including third-body potentials), because REBOUND's own
+energy offset ignores third bodies.
+
+Records: final elements are astrocentric (primary = the star) and, for a planet
+already gone, those at the moment of its fate (a merging planet's orbit about
+the star at contact is often formally unbound).  A planet still inside the
+ejection distance at the end is a survivor even if unbound (e_final > 1 shows
+it).  The wall-clock cap counts all segments of a system together and is
+checked between chunks, so it can be exceeded by one chunk's duration.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import os
+import time
+import warnings
+from dataclasses import asdict
+from pathlib import Path
+
+import numpy as np
+import rebound
+from rebound import clibrebound
+
+from .constants import G_AU_YR_MSUN
+from .encounters import (binding_to_rest, classify_star_pass, encounter_radii, line_min_distance,
+                         merge_jump, mutual_hill_radius_now, pericentre_timescale, relative_orbit,
+                         star_contact_distance)
+from .errors import InputError
+from .initial_conditions import InitialSystem, draw_system, true_anomaly
+from .ledger import FateEntry, Ledger, read_checkpoint, write_checkpoint
+from .outcome import NO_PLANET, EndReason, Fate, SystemRecord
+from .record_builder import build_record, planet_index, planet_name
+from .stability import marchal_bozis_state_ratio, tidal_disruption_radius
+
+__all__ = ["integrate_system", "integrate_initial", "HYBRID_INTEGRATORS", "STAR_NAME"]
+
+STAR_NAME = "star"
+HYBRID_INTEGRATORS = ("trace", "mercurius")
+ENCOUNTER_MARGIN = 1.25        # search radii cover 1.25 mutual Hill radii until the first encounter
+ESCAPE_MARGIN = 1.05           # a bound planet beyond the ejection distance: escape radius 1.05 x apocentre
+MIN_DT_FRACTION = 1e-4         # IAS15 step floor: 1e-4 of the shortest contact free-fall time
+
+
+def integrate_system(spec, index: int, *, checkpoint_path=None, reference: bool = False) -> SystemRecord:
+    """Draw system ``index`` of ``spec``, integrate it and classify its outcome.
+
+    Parameters
+    ----------
+    spec : scatter_pop.spec.EnsembleSpec
+    index : int
+        System index (its initial conditions come from ``draw_system(spec, index)``).
+    checkpoint_path : str or Path, optional
+        If the file exists, continue from it (it must belong to the same system
+        and settings).  If the wall-clock cap is reached, the state is written
+        there and the record has end_reason CAPPED.  Removed when the system
+        finishes.
+    reference : bool
+        Never stop early (validation mode): run to the end time even when the
+        outcome is settled.
+
+    Returns
+    -------
+    SystemRecord
+    """
+    return integrate_initial(draw_system(spec, index), spec.integration, spec.outcomes,
+                             checkpoint_path=checkpoint_path, reference=reference)
+
+
+def integrate_initial(initial: InitialSystem, integration, outcomes, *, checkpoint_path=None,
+                      reference: bool = False) -> SystemRecord:
+    """Integrate given initial conditions and classify the outcome.
+
+    Same as :func:`integrate_system` but from an :class:`InitialSystem` (e.g. a
+    hand-made orbit) and the spec's ``integration`` (IntegrationSpec) and
+    ``outcomes`` (OutcomeSpec) sections.
+    """
+    return _SystemRun(initial, integration, outcomes, checkpoint_path, reference).run()
+
+
+class _SystemRun:
+    """One system's integration: the simulation, its ledger and the event handlers."""
+
+    def __init__(self, initial, integration, outcomes, checkpoint_path, reference):
+        self.initial, self.integ, self.out = initial, integration, outcomes
+        self.path = Path(checkpoint_path) if checkpoint_path is not None else None
+        self.settle = integration.stop_when_settled and not reference
+        self.p_in = initial.inner_period()
+        self.t_end = integration.end_time_years(self.p_in)
+        self.chunk = integration.check_orbits * self.p_in
+        self.error = None
+        identity = {"initial": asdict(initial), "integration": asdict(integration),
+                    "outcomes": asdict(outcomes)}
+        identity["integration"].pop("wall_seconds_max")
+        self.identity = json.loads(json.dumps(identity))
+        if self.path is not None and self.path.exists():
+            self.ledger, blob = read_checkpoint(self.path)
+            if self.ledger.identity != self.identity:
+                raise InputError(f"checkpoint {str(self.path)!r}: written for another system or other settings "
+                                 f"(system index {self.ledger.identity.get('initial', {}).get('index')!r}); "
+                                 "remove it or point to the right file")
+            with warnings.catch_warnings():       # the resolve function is set again just below
+                warnings.filterwarnings("ignore", message="You have to reset function pointers")
+                self.sim = rebound.Simulation(blob)
+        else:
+            self.ledger = Ledger(identity=self.identity)
+            self.sim = self._build()
+        self.sim.collision_resolve = self._resolve      # function pointers are not saved: set every time
+
+    # ------------------------------------------------------------------ set-up
+    def _build(self):
+        ini, integ = self.initial, self.integ
+        sim = rebound.Simulation()
+        sim.G = G_AU_YR_MSUN
+        sim.add(m=ini.star_mass, r=ini.star_radius, name=STAR_NAME)
+        self.ledger.radius[STAR_NAME] = ini.star_radius
+        for i in range(ini.count):
+            sim.add(primary=sim.particles[0], m=ini.mass[i], r=ini.radius[i], a=ini.a[i], e=ini.e[i],
+                    inc=ini.inc[i], omega=ini.omega[i], Omega=ini.node[i],
+                    f=true_anomaly(ini.mean_anomaly[i], ini.e[i]), name=planet_name(i))
+            self.ledger.radius[planet_name(i)] = ini.radius[i]
+        sim.move_to_com()
+        if not all(math.isfinite(c) for k in range(sim.N) for c in (*sim.particles[k].xyz, *sim.particles[k].vxyz)):
+            raise InputError(f"initial system {ini.index}: the elements give no finite position "
+                             f"(a = {ini.a}, e = {ini.e})")
+        sim.rand_seed = int(ini.seed) % 2**32        # orders simultaneous contacts; saved with the state
+        sim.integrator = integ.integrator
+        if integ.integrator == "ias15":
+            sim.integrator.epsilon = integ.epsilon
+            sim.integrator.min_dt = MIN_DT_FRACTION * self._contact_time()
+        elif integ.integrator == "bs":
+            sim.integrator.eps_abs = integ.bs_epsilon
+            sim.integrator.eps_rel = integ.bs_epsilon
+        else:
+            sim.integrator.r_crit_hill = integ.r_crit_hill
+        sim.collision = "direct" if integ.integrator == "mercurius" else "line"
+        sim.track_energy_offset = 0                  # every jump is booked in the ledger instead
+        sim.exit_max_distance = integ.ejection_distance
+        self.sim = sim
+        sim.dt = self._step_size() if integ.integrator in HYBRID_INTEGRATORS else self.p_in / 100.0
+        self.ledger.e0 = sim.energy()
+        self.ledger.l0 = list(sim.angular_momentum())
+        self._set_search_radii()
+        return sim
+
+    def _contact_time(self) -> float:
+        """Shortest free-fall time at contact (yr): star surface or two touching planets."""
+        ini = self.initial
+        g = G_AU_YR_MSUN
+        times = [math.sqrt((ini.star_radius + r) ** 3 / (g * (ini.star_mass + m))) for m, r in zip(ini.mass, ini.radius)]
+        for i in range(ini.count):
+            for j in range(i + 1, ini.count):
+                d = ini.radius[i] + ini.radius[j]
+                times.append(math.sqrt(d**3 / (g * (ini.mass[i] + ini.mass[j]))))
+        return min(times)
+
+    # ------------------------------------------------------------------ state helpers
+    def _arrays(self):
+        ps = self.sim.particles
+        n = self.sim.N
+        m = np.array([ps[i].m for i in range(n)])
+        x = np.array([ps[i].xyz for i in range(n)])
+        v = np.array([ps[i].vxyz for i in range(n)])
+        return m, x, v
+
+    def _astro(self, k: int):
+        """(a, e, q) of particle k about the star, from relative coordinates (any frame)."""
+        ps = self.sim.particles
+        dx = np.subtract(ps[k].xyz, ps[0].xyz)
+        dv = np.subtract(ps[k].vxyz, ps[0].vxyz)
+        return relative_orbit(dx, dv, self.sim.G * (ps[0].m + ps[k].m))
+
+    def _size(self, k: int) -> float:
+        a, _, _ = self._astro(k)
+        if 0.0 < a < math.inf:
+            return a
+        ps = self.sim.particles
+        return float(np.linalg.norm(np.subtract(ps[k].xyz, ps[0].xyz)))
+
+    def _end_distance(self, k: int) -> float:
+        ps = self.sim.particles
+        return star_contact_distance(ps[0].m, self.initial.star_radius, ps[k].m,
+                                     self.ledger.radius[ps[k].name], self.out.disruption_eta)
+
+    def _set_star_radius(self, exclude: int | None = None) -> None:
+        """Star search radius: every planet is listed once within its end distance."""
+        ps = self.sim.particles
+        need = [self._end_distance(k) - ps[k].r for k in range(1, self.sim.N) if k != exclude]
+        ps[0].r = max([0.0, *need]) if need else self.initial.star_radius
+
+    def _set_search_radii(self) -> None:
+        """Planet search radii (Hill-scale before the first encounter, physical after) and the star's."""
+        ps, n = self.sim.particles, self.sim.N
+        if self.ledger.encounter_found or n < 3:
+            for k in range(1, n):
+                ps[k].r = self.ledger.radius[ps[k].name]
+        else:
+            radii = encounter_radii(ps[0].m, [ps[k].m for k in range(1, n)],
+                                    [self._size(k) for k in range(1, n)], ENCOUNTER_MARGIN)
+            for k in range(1, n):
+                ps[k].r = max(radii[k - 1], self.ledger.radius[ps[k].name])
+        self._set_star_radius()
+
+    def _step_size(self) -> float:
+        """Hybrid step: shortest current orbital time scale (pericentre-resolved) / steps_per_orbit."""
+        ps = self.sim.particles
+        scales = []
+        for k in range(1, self.sim.N):
+            a, e, _ = self._astro(k)
+            if 0.0 < a < math.inf and e < 1.0:
+                scales.append(pericentre_timescale(self.sim.G * (ps[0].m + ps[k].m), a, e))
+        base = min(scales) if scales else self.p_in
+        return base / self.integ.steps_per_orbit
+
+    def _fate_entry(self, k: int, fate: Fate, merged_into: int = NO_PLANET) -> FateEntry:
+        ps = self.sim.particles
+        orbit = ps[k].orbit(primary=ps[0])
+        _, _, q = self._astro(k)
+        return FateEntry(fate=int(fate), t=float(self.sim.t), merged_into=int(merged_into), mass=float(ps[k].m),
+                         a=float(orbit.a), e=float(orbit.e), inc=float(orbit.inc), omega=float(orbit.omega),
+                         node=float(orbit.Omega), q=float(q), radius=float(self.ledger.radius[ps[k].name]))
+
+    # ------------------------------------------------------------------ contacts (inside a step)
+    def _resolve(self, sim_pointer, collision):
+        try:
+            return self._contact(sim_pointer, collision)
+        except Exception as exc:            # a ctypes callback must not raise: stop, re-raise after
+            self.error = exc
+            clibrebound.reb_simulation_stop(sim_pointer)
+            return 0
+
+    def _contact(self, sim_pointer, collision) -> int:
+        i, j = int(collision.p1), int(collision.p2)
+        if i == 0 or j == 0:
+            return self._star_pass(sim_pointer, collision, j if i == 0 else i)
+        ps = self.sim.particles
+        dx = np.subtract(ps[i].xyz, ps[j].xyz)
+        dv = np.subtract(ps[i].vxyz, ps[j].vxyz)
+        if self.integ.integrator == "mercurius":     # "direct" search: end of step, approaching pairs
+            d_min = float(np.linalg.norm(dx)) if float(dx @ dv) <= 0.0 else math.inf
+        else:
+            d_min = line_min_distance(dx, dv, self.sim.dt_last_done)
+        if not self.ledger.encounter_found:        # sampled at step ends (no extrapolation)
+            r_hill = mutual_hill_radius_now(ps[0].m, ps[i].m, ps[j].m, self._size(i), self._size(j))
+            if float(np.linalg.norm(dx)) < r_hill:
+                self.ledger.t_first_encounter = float(self.sim.t)
+                self._set_search_radii()
+        ri, rj = self.ledger.radius[ps[i].name], self.ledger.radius[ps[j].name]
+        if d_min >= ri + rj:
+            return 0
+        keep, gone = (i, j) if i < j else (j, i)
+        self.ledger.fates[ps[gone].name] = self._fate_entry(gone, Fate.MERGED, planet_index(ps[keep].name))
+        m, x, v = self._arrays()
+        self.ledger.book(*merge_jump(m, x, v, i, j, self.sim.G))
+        ps[i].r, ps[j].r = ri, rj                    # merged radius from the physical radii
+        keep_name = ps[keep].name
+        outcome = clibrebound.reb_collision_resolve_merge(sim_pointer, collision)
+        self.ledger.radius[keep_name] = float(ps[keep].r)
+        self._set_star_radius(exclude=gone)
+        return outcome
+
+    def _star_pass(self, sim_pointer, collision, k: int) -> int:
+        ps = self.sim.particles
+        _, _, q = self._astro(k)
+        kind = classify_star_pass(q, ps[0].m, self.initial.star_radius, ps[k].m,
+                                  self.ledger.radius[ps[k].name], self.out.disruption_eta)
+        if kind is None:
+            return 0
+        fate = Fate.HIT_STAR if kind == "hit_star" else Fate.DISRUPTED
+        if self.integ.integrator != "mercurius":    # "line" search: wait until the pass is reached
+            r_p = self.ledger.radius[ps[k].name]
+            limit = (self.initial.star_radius + r_p if fate == Fate.HIT_STAR else
+                     float(tidal_disruption_radius(ps[k].m, r_p, ps[0].m, self.out.disruption_eta)))
+            dx = np.subtract(ps[k].xyz, ps[0].xyz)
+            dv = np.subtract(ps[k].vxyz, ps[0].vxyz)
+            if float(dx @ dv) < 0.0 and line_min_distance(dx, dv, self.sim.dt_last_done) >= limit:
+                return 0                             # still falling in: decide at a later step
+        self.ledger.fates[ps[k].name] = self._fate_entry(k, fate)
+        m, x, v = self._arrays()
+        self.ledger.book(*merge_jump(m, x, v, 0, k, self.sim.G))
+        ps[0].r = self.initial.star_radius
+        outcome = clibrebound.reb_collision_resolve_merge(sim_pointer, collision)
+        self._set_star_radius(exclude=k)
+        return outcome
+
+    # ------------------------------------------------------------------ escapes (between steps)
+    def _escape(self) -> None:
+        sim, limit = self.sim, self.integ.ejection_distance
+        while True:
+            m, x, v = self._arrays()
+            far = [k for k in range(1, sim.N) if float(np.linalg.norm(x[k])) > limit]
+            unbound = [k for k in far if binding_to_rest(m, x, v, k, sim.G)[0] >= 0.0]
+            if not unbound:
+                break
+            k = unbound[0]
+            name = sim.particles[k].name
+            self.ledger.fates[name] = self._fate_entry(k, Fate.EJECTED)
+            e_before, l_before = sim.energy(), np.array(sim.angular_momentum())
+            sim.remove(int(k))
+            sim.move_to_com()
+            self.ledger.book(sim.energy() - e_before, np.array(sim.angular_momentum()) - l_before)
+            self._set_star_radius()
+        self._set_escape_radius()
+
+    def _set_escape_radius(self) -> None:
+        """Ejection distance, or above the apocentre of a bound planet currently beyond it."""
+        sim, limit = self.sim, self.integ.ejection_distance
+        m, x, v = self._arrays()
+        radius = limit
+        for k in range(1, sim.N):
+            dist = float(np.linalg.norm(x[k]))
+            if dist > limit:
+                _, apo = binding_to_rest(m, x, v, k, sim.G)
+                radius = max(radius, ESCAPE_MARGIN * max(apo, dist))
+        sim.exit_max_distance = radius
+
+    # ------------------------------------------------------------------ the run
+    def _integrate_to(self, t: float) -> None:
+        while self.sim.t < t:
+            try:
+                self.sim.integrate(t, exact_finish_time=0)
+            except rebound.Escape:
+                self._raise_callback_error()
+                self._escape()
+                continue
+            self._raise_callback_error()
+
+    def _raise_callback_error(self) -> None:
+        if self.error is not None:
+            error, self.error = self.error, None
+            raise RuntimeError(f"event handling failed at t = {self.sim.t!r} yr") from error
+
+    def _settled(self):
+        n = self.sim.N - 1
+        if n == 0:
+            return EndReason.NO_PLANETS
+        if not self.settle:
+            return None
+        if n == 1:
+            return EndReason.ONE_PLANET
+        if n == 2:
+            m, x, v = self._arrays()
+            if marchal_bozis_state_ratio(m, x, v, self.sim.G) >= self.integ.hill_margin:
+                return EndReason.HILL_STABLE
+        return None
+
+    def run(self) -> SystemRecord:
+        start = time.perf_counter()
+        spent_before = self.ledger.wall_seconds
+        reason = self._settled() if self.sim.N <= 2 else None
+        while reason is None:
+            target = min((self.ledger.chunks_done + 1) * self.chunk, self.t_end)
+            self._integrate_to(target)
+            self.ledger.chunks_done += 1
+            self._escape()                               # eject unbound planets beyond the distance
+            reason = self._settled()
+            if reason is None and self.sim.t >= self.t_end:
+                reason = EndReason.END_TIME
+            if reason is None:
+                self._set_search_radii()
+                if self.integ.integrator in HYBRID_INTEGRATORS:
+                    self.sim.dt = self._step_size()
+                if spent_before + time.perf_counter() - start >= self.integ.wall_seconds_max:
+                    reason = EndReason.CAPPED
+        self.ledger.wall_seconds = spent_before + time.perf_counter() - start
+        if reason == EndReason.CAPPED:
+            if self.path is not None:
+                write_checkpoint(self.path, self.ledger, self.sim.__reduce__()[1][0])
+        elif self.path is not None and self.path.exists():
+            os.remove(self.path)
+        return self._record(reason)
+
+    # ------------------------------------------------------------------ the record
+    def _record(self, reason: EndReason) -> SystemRecord:
+        sim = self.sim
+        survivors = {sim.particles[k].name: self._fate_entry(k, Fate.SURVIVED) for k in range(1, sim.N)}
+        return build_record(self.initial, self.ledger, survivors, reason=reason, t_end=sim.t,
+                            energy=sim.energy(), angmom=sim.angular_momentum(), steps=sim.steps_done,
+                            integrator=self.integ.integrator, circularisation_q=self.out.circularisation_q)
