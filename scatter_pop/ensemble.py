@@ -16,8 +16,9 @@ Fault handling
 * A system whose integration raises is likewise isolated and recorded as failed; its traceback
   goes to ``DIR/failures.log``.  ``retry_failed=True`` computes failed systems again.
 * A system stopped by the wall-clock cap (end reason ``wall_clock_cap``) leaves a REBOUND
-  checkpoint in ``DIR/checkpoints/``; it is continued from there by ``extend=True`` or by a rerun
-  whose ``integration.wall_seconds_max`` exceeds the cap it was stopped by.
+  checkpoint in ``DIR/checkpoints/``; it is continued from there by ``extend=True`` (another
+  ``wall_seconds_max`` on top of the time it has used) or by a rerun whose
+  ``integration.wall_seconds_max`` exceeds the time it has used (see :mod:`scatter_pop.plan`).
 
 Test-only fault injection: a worker task that is about to integrate a system whose index is listed
 in the environment variable ``SCATTER_POP_TEST_KILL_SYSTEMS`` (comma-separated) sends SIGKILL to
@@ -63,7 +64,8 @@ def default_out(spec: EnsembleSpec) -> Path:
 
 
 # --------------------------------------------------------------------------- worker side
-def integrate_batch(spec: EnsembleSpec, indices: tuple[int, ...], folder: str) -> list[SystemRecord]:
+def integrate_batch(spec: EnsembleSpec, indices: tuple[int, ...], folder: str,
+                    budgets: tuple[float, ...] | None = None) -> list[SystemRecord]:
     """Worker task: integrate systems ``indices`` one after the other.
 
     Parameters
@@ -73,15 +75,22 @@ def integrate_batch(spec: EnsembleSpec, indices: tuple[int, ...], folder: str) -
         System indices of the batch.
     folder : str
         The run folder (must be visible to the worker: checkpoints are read and written there).
+    budgets : tuple of float, optional
+        Per system, the wall-clock cap to use instead of ``integration.wall_seconds_max``, s
+        (time already spent on a continued system counts against it).
     """
     from .integrate import integrate_system
     doomed = {int(x) for x in os.environ.get(FAULT_ENV, "").split(",") if x.strip()}
     run = RunFolder(folder)
     records = []
-    for index in indices:
+    for k, index in enumerate(indices):
         if index in doomed:                              # test-only fault injection
             os.kill(os.getpid(), signal.SIGKILL)
-        records.append(integrate_system(spec, index, checkpoint_path=run.checkpoint_path(index)))
+        this = spec
+        if budgets is not None:
+            this = dataclasses.replace(spec, integration=dataclasses.replace(
+                spec.integration, wall_seconds_max=budgets[k]))
+        records.append(integrate_system(this, index, checkpoint_path=run.checkpoint_path(index)))
     return records
 
 
@@ -194,7 +203,8 @@ class EnsembleRun:
             return
         from .cluster import connect
         config = self.cluster if self.cluster is not None else self.spec.cluster
-        longest = self.spec.integration.wall_seconds_max * max(plan.batch_size, 1)
+        widest = max([plan.batch_size, 1] + [len(t.indices) for t in plan.redo])
+        longest = self.spec.integration.wall_seconds_max * widest
         t0 = time.monotonic()
         with connect(config, workers=self.workers, scheduler=self.scheduler,
                      longest_task_seconds=longest) as client:
@@ -230,7 +240,7 @@ class EnsembleRun:
                 if task is None:
                     return
                 key = f"integrate-{task.indices[0]}-{task.indices[-1]}-{token}-{uuid.uuid4().hex[:6]}"
-                fut = client.submit(integrate_batch, spec, task.indices, str(folder.path),
+                fut = client.submit(integrate_batch, spec, task.indices, str(folder.path), task.budgets,
                                     key=key, pure=False)
                 inflight[fut] = task
                 done_iter.add(fut)

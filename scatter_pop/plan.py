@@ -4,8 +4,11 @@ A :class:`Plan` is made from the part files already on disk (:mod:`scatter_pop.s
 
 * *new* systems are the indices ``0 .. run.systems-1`` that no part holds; they are cut into
   batches of consecutive indices, each written as a new part when it finishes;
-* *continued* systems are capped ones (end reason ``wall_clock_cap``) when ``extend`` is asked
-  for or the spec's ``integration.wall_seconds_max`` exceeds the cap their part was written under;
+* *continued* systems are capped ones (end reason ``wall_clock_cap``).  The cap is a budget of
+  wall-clock seconds per system, counted over all its runs: a capped system whose time so far
+  (``wall_seconds``) is below the spec's ``integration.wall_seconds_max`` (the cap was raised)
+  continues up to it; with ``extend`` every capped system gets another ``wall_seconds_max`` on
+  top of what it has used;
 * *retried* systems are failed ones when ``retry_failed`` is asked for.
 
 Continued and retried systems are recomputed per part and their rows replaced in that part.
@@ -44,9 +47,12 @@ class Task:
 
     indices: tuple[int, ...]
     part_first: int | None = None
+    budgets: tuple[float, ...] | None = None     # per system wall_seconds_max, s (None: the spec's)
 
     def split(self) -> list["Task"]:
-        return [Task((i,), self.part_first) for i in self.indices]
+        budgets = self.budgets or (None,) * len(self.indices)
+        return [Task((i,), self.part_first, None if b is None else (b,))
+                for i, b in zip(self.indices, budgets)]
 
 
 class Plan:
@@ -70,13 +76,20 @@ class Plan:
             held[inside["system"].values] = True
             reason = inside["end_reason"].values
             idx = inside["system"].values
-            capped = idx[reason == int(EndReason.CAPPED)]
-            again = [int(i) for i in capped] if (extend or p.wall_seconds_max < cap) else []
-            self.kept_capped += len(capped) - len(again)
+            spent = inside["wall_seconds"].values
+            again = {}
+            for i, used in zip(idx[reason == int(EndReason.CAPPED)], spent[reason == int(EndReason.CAPPED)]):
+                if extend:
+                    again[int(i)] = float(used) + cap
+                elif used < cap:
+                    again[int(i)] = cap
+                else:
+                    self.kept_capped += 1
             if retry_failed:
-                again += [int(i) for i in idx[reason == int(EndReason.FAILED)]]
+                again.update({int(i): cap for i in idx[reason == int(EndReason.FAILED)]})
             if again:
-                self.redo.append(Task(tuple(sorted(again)), p.first))
+                order = sorted(again)
+                self.redo.append(Task(tuple(order), p.first, tuple(again[i] for i in order)))
         self.n_continue = sum(len(t.indices) for t in self.redo)
         missing = np.flatnonzero(~held)
         self.n_new = int(missing.size)

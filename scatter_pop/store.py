@@ -96,9 +96,18 @@ def _atomic(path: Path, write) -> None:
 
 
 def atomic_write_netcdf(ds: xr.Dataset, path: Path, encoding: dict | None = None) -> None:
-    """Write ``ds`` to ``path`` (netCDF4 engine) so that the file is whole or absent."""
-    _atomic(Path(path), lambda tmp: ds.to_netcdf(tmp, engine="netcdf4", format="NETCDF4",
-                                                 encoding=encoding))
+    """Write ``ds`` (in memory) to ``path`` (netCDF4 engine) so that the file is whole or absent.
+
+    Written with dask's synchronous scheduler: with a distributed Client active, xarray would
+    otherwise take a *distributed* lock (a scheduler round trip) for every variable written,
+    measured at 0.2 s a part file instead of 0.01 s.
+    """
+    import dask
+
+    def write(tmp):
+        with dask.config.set(scheduler="synchronous"):
+            ds.to_netcdf(tmp, engine="netcdf4", format="NETCDF4", encoding=encoding)
+    _atomic(Path(path), write)
 
 
 def atomic_write_text(text: str, path: Path) -> None:
@@ -124,11 +133,6 @@ class Part:
     @property
     def indices(self) -> np.ndarray:
         return self.data["system"].values
-
-    @property
-    def wall_seconds_max(self) -> float:
-        """Wall-clock cap (s) in force when the part's systems were last integrated."""
-        return float(self.data.attrs.get("wall_seconds_max", np.inf))
 
 
 class RunFolder:
@@ -248,8 +252,7 @@ class RunFolder:
         if not np.array_equal(idx, np.arange(first, last + 1)):
             raise ValueError(f"a part must hold consecutive systems, got {idx.tolist()}")
         data = data.copy()
-        data.attrs.update(spec_digest=spec.digest(), wall_seconds_max=spec.integration.wall_seconds_max,
-                          date_written=_utc_now())
+        data.attrs.update(spec_digest=spec.digest(), date_written=_utc_now())
         self.parts_dir.mkdir(parents=True, exist_ok=True)
         path = self.parts_dir / part_name(first, last)
         atomic_write_netcdf(data, path)
@@ -342,7 +345,8 @@ def _identity_differences(old: EnsembleSpec, new: EnsembleSpec) -> list[str]:
                 out[f"{prefix}{k}"] = v
         return out
     a, b = flat(old.identity()), flat(new.identity())
-    return sorted(k for k in a.keys() | b.keys() if a.get(k) != b.get(k))
+    keys = sorted(k for k in a.keys() | b.keys() if a.get(k) != b.get(k))
+    return ["run.seed" if k == "seed" else k for k in keys]       # spec keys, as the user wrote them
 
 
 def prepare_folder(spec: EnsembleSpec, out, *, fresh: bool = False, dry_run: bool = False,

@@ -87,14 +87,16 @@ def assert_physics_equal(a, b, systems=None) -> None:
 _REFERENCE: dict = {}
 
 
-def reference(tmp_root: Path, systems: int, end_time: float = 300.0, extra: str = ""):
-    """The uninterrupted run of spec_text(systems, end_time, extra): 2 local workers, automatic batches."""
+def reference(tmp_root: Path, systems: int, end_time: float = 300.0, extra: str = "", client=None):
+    """The uninterrupted run of spec_text(systems, end_time, extra), automatic batches, on
+    ``client`` or else a fresh local cluster of 2 workers; computed once per session."""
     key = (systems, end_time, extra)
     if key not in _REFERENCE:
         from scatter_pop import parse_spec, run_ensemble
         out = tmp_root / f"reference_{systems}_{len(_REFERENCE)}"
         spec = parse_spec(spec_text(systems=systems, end_time=end_time, extra=extra))
-        _REFERENCE[key] = run_ensemble(spec, out=out, workers=2, progress_interval=60, log=lambda s: None)
+        options = {"client": client} if client is not None else {"workers": 2}
+        _REFERENCE[key] = run_ensemble(spec, out=out, progress_interval=60, log=lambda s: None, **options)
     return _REFERENCE[key]
 
 
@@ -116,13 +118,13 @@ def run_cli(*args, env=None, timeout=120.0) -> subprocess.CompletedProcess:
     return subprocess.CompletedProcess(proc.args, proc.returncode, out, err)
 
 
-def kill_group(proc: subprocess.Popen) -> None:
-    """SIGKILL the process group this test started (driver, nannies, workers)."""
+def kill_group(proc: subprocess.Popen) -> tuple[str, str]:
+    """SIGKILL the process group this test started (driver, nannies, workers); its (stdout, stderr)."""
     try:
         os.killpg(proc.pid, signal.SIGKILL)
     except ProcessLookupError:
         pass
-    proc.communicate(timeout=30)
+    return proc.communicate(timeout=30)
 
 
 def wait_for(predicate, timeout: float, what: str, poll: float = 0.05):
