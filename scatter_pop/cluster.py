@@ -38,7 +38,7 @@ if TYPE_CHECKING:
     import distributed
 
 __all__ = ["ClusterConfig", "KINDS", "ALLOWED_FAILURES", "WalltimeWarning", "load_cluster_file",
-           "connect", "job_script", "configure_dask", "check_walltime"]
+           "apply_overrides", "connect", "job_script", "configure_dask", "check_walltime"]
 
 ALLOWED_FAILURES = 5       # worker deaths a task may witness before it is declared failed
 JOB_NAME = "scatter-pop"   # name of the worker jobs in squeue / qstat
@@ -116,6 +116,8 @@ def _recording(job_cls):
             try:
                 await super().start()
             except RuntimeError as exc:
+                from distributed.core import Status
+                self.status = Status.failed       # lets the cluster close cleanly afterwards
                 text = str(exc).split("stderr:", 1)[-1]
                 lines = [ln.strip() for ln in text.splitlines() if ln.strip()]
                 _SUBMIT_ERRORS.setdefault(self.scheduler, []).append(" | ".join(lines[:2]))
