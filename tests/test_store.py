@@ -221,3 +221,17 @@ def test_replacing_rows_keeps_the_other_systems(tmp_path):
     assert_physics_equal(again.sel(system=[0, 1, 3]), part_data(0, 3).sel(system=[0, 1, 3]))
     assert replaced.path == part.path                          # same file, rewritten atomically
     assert [p.name for p in folder.parts_dir.iterdir()] == [part.path.name]
+
+
+def test_readme_documents_every_variable_with_its_units():
+    """README "Running an ensemble" lists each schema variable with schema.py's units."""
+    from pathlib import Path
+    text = (Path(__file__).resolve().parents[1] / "README.md").read_text(encoding="utf-8")
+    section = text.split("## Running an ensemble", 1)[1].split("\n## ", 1)[0]
+    documented = {}
+    for row in section.splitlines():
+        cells = [c.strip() for c in row.strip().strip("|").split("|")]
+        if len(cells) == 4 and cells[0].startswith("`"):
+            for name in cells[0].replace("`", "").split(","):
+                documented[name.strip()] = cells[2]
+    assert {v.name: v.units for v in VARIABLES} == {v.name: documented.get(v.name) for v in VARIABLES}
