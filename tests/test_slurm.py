@@ -193,8 +193,8 @@ def _physics_equal(a, b) -> list[str]:
 
 
 def test_ensemble_on_slurm_equals_local_bit_for_bit(slurm, tmp_path):
-    ensemble = pytest.importorskip("scatter_pop.ensemble")
     from scatter_pop.cli import main
+    from scatter_pop.ensemble import run_ensemble
     spec = os.path.join(ROOT, "tests", "data", "tiny.toml")
     cluster_file = tmp_path / "slurm.toml"
     # 1-day walltime: the driver checks it against its worst-case batch time (the wall cap)
@@ -203,10 +203,11 @@ def test_ensemble_on_slurm_equals_local_bit_for_bit(slurm, tmp_path):
     cluster_file.write_text("\n".join(lines) + "\n")
     status = main(["run", spec, "--out", str(tmp_path / "on_slurm"), "--cluster", str(cluster_file)])
     assert status == 0
+    assert len(list((tmp_path / "logs").glob("scatter-pop-*.err"))) >= 1   # SLURM jobs did it
     assert wait_for_no_jobs(20.0) == []
     on_slurm = xr.load_dataset(tmp_path / "on_slurm" / "ensemble.nc")
-    local = ensemble.run_ensemble(spec, out=tmp_path / "local", workers=2,
-                                  cluster=ClusterConfig(dashboard_port=0))
+    local = run_ensemble(spec, out=tmp_path / "local", workers=2,
+                         cluster=ClusterConfig(dashboard_port=0))
     assert on_slurm.sizes["system"] == local.sizes["system"] == 4
     assert np.array_equal(on_slurm["system"].values, local["system"].values)
     assert _physics_equal(on_slurm, local) == []
