@@ -63,19 +63,20 @@ def _hms(seconds: float) -> str:
 
 
 def check_walltime(walltime: str, longest_task_seconds: float | None) -> None:
-    """Refuse a walltime that cannot hold the longest task; warn when it holds < 10 of them.
+    """Refuse a walltime that cannot hold the longest task; warn when it holds < 4 of them.
 
     A retiring worker interrupts its running task, which then restarts elsewhere and counts as
     one failure (at most ``ALLOWED_FAILURES``).  A task longer than the earliest retirement can
-    never finish; one longer than a tenth of it is interrupted in a sizeable fraction of jobs.
+    never finish; one started at a random moment of a worker's life is interrupted with a
+    probability of about (task time) / (lifetime), so beyond a quarter of it the walltime is tight.
     """
     if not longest_task_seconds or longest_task_seconds <= 0:
         return
     from scipy.optimize import brentq
     usable, task = _usable(walltime_seconds(walltime)), float(longest_task_seconds)
-    if task < 0.1 * usable:
+    if task <= 0.25 * usable:
         return
-    advised = _hms(brentq(lambda w: _usable(w) - 10 * task, 120, 1e9))
+    advised = _hms(brentq(lambda w: _usable(w) - 4 * task, 120, 1e9))
     if task >= usable:
         least = _hms(brentq(lambda w: _usable(w) - task, 120, 1e9))
         raise InputError(f"cluster.walltime = {toml_repr(walltime)}: too short for the longest expected "
@@ -133,7 +134,7 @@ class ClusterConfig:
     account: str | None = None
     cores: int = 1
     memory: str | None = None
-    walltime: str = "01:00:00"
+    walltime: str = "24:00:00"
     jobs: int | None = None
     minimum_jobs: int | None = None
     maximum_jobs: int | None = None

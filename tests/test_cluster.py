@@ -88,7 +88,7 @@ def test_table_that_is_not_a_table():
 def test_defaults_resolved_at_load_time():
     assert ClusterConfig.from_table({}) == ClusterConfig()
     c = ClusterConfig.from_table({"kind": "slurm", "cores": 4})
-    assert (c.minimum_jobs, c.maximum_jobs, c.memory, c.walltime) == (1, 1, "8GiB", "01:00:00")
+    assert (c.minimum_jobs, c.maximum_jobs, c.memory, c.walltime) == (1, 1, "8GiB", "24:00:00")
     c = ClusterConfig.from_table({"kind": "slurm", "jobs": 3})
     assert (c.jobs, c.minimum_jobs, c.maximum_jobs) == (None, 3, 3)
     c = ClusterConfig.from_table({"kind": "pbs", "maximum_jobs": 10})
@@ -182,7 +182,7 @@ def test_workers_always_retire_before_the_walltime(walltime):
 def test_walltime_against_longest_task():
     with warnings.catch_warnings():
         warnings.simplefilter("error")
-        check_walltime("01:00:00", 60.0)          # 60 s batches in 1 h jobs: fine, silent
+        check_walltime("01:00:00", 600.0)         # 10 min batches in 1 h jobs: fine, silent
         check_walltime("01:00:00", None)
     with pytest.warns(WalltimeWarning, match=r"cluster.walltime = \"01:00:00\".*advised"):
         check_walltime("01:00:00", 1200.0)        # 20 min batches: allowed, but warned
@@ -365,3 +365,13 @@ def test_sigterm_to_the_driver_closes_the_cluster(tmp_path):
             proc.kill()
     assert proc.returncode == 143
     assert out.strip() == "closed closed"
+
+
+def test_readme_documents_every_cluster_key():
+    """README "Running on a cluster" has a table row for every [cluster] key (common practice)."""
+    from dataclasses import fields
+    from pathlib import Path
+    readme = (Path(__file__).resolve().parent.parent / "README.md").read_text()
+    section = readme.split("<!-- section: cluster -->", 1)[1].split("\n## ", 1)[0]
+    for f in fields(ClusterConfig):
+        assert f"| `{f.name}` |" in section, f.name
