@@ -76,7 +76,10 @@ def _job_id(i):
 
 @pytest.mark.slurm
 @pytest.mark.slow
-def test_workers_start_through_qsub_and_qdel_ends_them(slurm, tmp_path):
+def test_workers_start_through_qsub_and_qdel_ends_them(slurm, tmp_path, monkeypatch):
+    # The Torque wrappers write the job's .o/.e files into the submitting folder,
+    # whatever the PBS -o/-e directives say: submit from tmp_path, not the checkout.
+    monkeypatch.chdir(tmp_path)
     text = TINY + f"""
 [cluster]
 kind = "pbs"
