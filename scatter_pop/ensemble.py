@@ -28,6 +28,7 @@ its own process.  Nothing else reads it; never set it outside tests.
 from __future__ import annotations
 
 import dataclasses
+import importlib.util
 import math
 import os
 import signal
@@ -214,8 +215,11 @@ class EnsembleRun:
     def _drive(self, client, plan: Plan) -> None:
         spec, folder, log = self.spec, plan.folder, self.log
         services = client.scheduler_info().get("services", {})
-        log(f"dashboard: {client.dashboard_link}" if "dashboard" in services
-            else "dashboard: not served (the scheduler has no dashboard; install bokeh for one)")
+        if "dashboard" not in services:
+            log("dashboard: not served by this scheduler")
+        else:
+            hint = "" if importlib.util.find_spec("bokeh") else " (its pages need bokeh: pip install bokeh)"
+            log(f"dashboard: {client.dashboard_link}{hint}")
         nworkers = len(client.nthreads())
         self.timings.workers = nworkers
         folder.write_state(pid=os.getpid(), host=socket.gethostname(), workers=nworkers,
@@ -302,8 +306,8 @@ class EnsembleRun:
         plan.store(task, data)
         self.timings.systems_computed += len(records)
         self.timings.integration_seconds += float(data["wall_seconds"].sum())
-        for r in records:
-            if r.end_reason != EndReason.CAPPED:
+        for r in records:       # a failed system keeps its checkpoint: --retry-failed continues it
+            if r.end_reason not in (EndReason.CAPPED, EndReason.FAILED):
                 plan.folder.checkpoint_path(r.index).unlink(missing_ok=True)
 
 

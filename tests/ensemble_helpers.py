@@ -3,8 +3,8 @@
 * ``TINY_TEXT``: a small unstable ensemble (two Jupiter-mass planets 2.5 mutual Hill radii apart,
   inside the Gladman 1993 Hill-stability boundary of 2*sqrt(3) ~ 3.46, so they scatter), short end
   time; ``spec_text(systems=..., ...)`` varies it.
-* ``reference(...)``: the uninterrupted run every variant is compared with, computed once per test
-  session on a fresh local cluster and cached.
+* ``reference(...)``: what every run must hold -- each system integrated by the engine called
+  directly in the test process (no Dask, no run folder), computed once per session.
 * ``run_cli(...)``: ``scatter-pop`` as a real subprocess (its own process group, so a test can
   SIGKILL the driver and then its whole group — processes this test started).
 * ``ensure_program``: a Debian program for the tests, installed with apt-get when missing (root
@@ -51,6 +51,9 @@ spacing = 2.5
 e_sigma = 0.01
 inc_sigma = 0.5
 
+[cluster]
+dashboard_port = 0
+
 [integration]
 integrator = "ias15"
 end_time = 300.0
@@ -87,16 +90,18 @@ def assert_physics_equal(a, b, systems=None) -> None:
 _REFERENCE: dict = {}
 
 
-def reference(tmp_root: Path, systems: int, end_time: float = 300.0, extra: str = "", client=None):
-    """The uninterrupted run of spec_text(systems, end_time, extra), automatic batches, on
-    ``client`` or else a fresh local cluster of 2 workers; computed once per session."""
+def reference(systems: int, end_time: float = 300.0, extra: str = ""):
+    """What every run of spec_text(systems, end_time, extra) must hold: each system integrated by
+    ``integrate_system`` called directly in this process (no Dask, no run folder), as a dataset.
+    Computed once per session."""
     key = (systems, end_time, extra)
     if key not in _REFERENCE:
-        from scatter_pop import parse_spec, run_ensemble
-        out = tmp_root / f"reference_{systems}_{len(_REFERENCE)}"
+        from scatter_pop import parse_spec
+        from scatter_pop.integrate import integrate_system
+        from scatter_pop.schema import records_to_dataset
         spec = parse_spec(spec_text(systems=systems, end_time=end_time, extra=extra))
-        options = {"client": client} if client is not None else {"workers": 2}
-        _REFERENCE[key] = run_ensemble(spec, out=out, progress_interval=60, log=lambda s: None, **options)
+        records = [integrate_system(spec, i) for i in range(systems)]
+        _REFERENCE[key] = records_to_dataset(records, spec.planets.count)
     return _REFERENCE[key]
 
 

@@ -5,8 +5,8 @@ is bit-for-bit the same whatever the number of workers, the batch size, or inter
 continuations -- because each system draws from its own seed (SeedSequence(run seed, index);
 O'Neill 2015, PCG / numpy SeedSequence design) and REBOUND restarts from a binary snapshot
 continue bit-identically (Rein & Tamayo 2017, MNRAS 467, 2377: SimulationArchive exact restarts).
-The reference each run is compared with is an uninterrupted run on 2 workers with automatic
-batches, and single systems are compared with ``integrate_system`` called directly.
+The reference each run is compared with is the engine (``integrate_system``) called directly in
+the test process, one system after another, with no Dask and no run folder.
 """
 
 from __future__ import annotations
@@ -17,7 +17,6 @@ import pytest
 import scatter_pop
 from scatter_pop.cluster import ClusterConfig, connect
 from scatter_pop.initial_conditions import draw_system
-from scatter_pop.integrate import integrate_system
 from scatter_pop.outcome import EndReason
 from scatter_pop.schema import validate_dataset
 from scatter_pop.spec import parse_spec
@@ -31,31 +30,31 @@ QUIET = dict(progress_interval=60.0, log=lambda line: None)
 
 
 @pytest.fixture(scope="module")
-def ref(tmp_path_factory):
-    return reference(tmp_path_factory.mktemp("ref"), systems=N, end_time=T_END)
+def ref():
+    return reference(systems=N, end_time=T_END)
 
 
 @pytest.fixture(scope="module")
 def client():
-    with connect(ClusterConfig(), workers=2) as c:
+    with connect(ClusterConfig(dashboard_port=0), workers=2) as c:
         yield c
 
 
-def test_reference_run_holds_every_system_as_the_engine_computes_it(ref):
+def test_default_run_holds_every_system_as_the_engine_computes_it(ref, tmp_path):
+    """Automatic batches on a cluster the driver starts itself (spec's [cluster]: local)."""
     spec = parse_spec(spec_text(systems=N, end_time=T_END))
-    validate_dataset(ref)
-    assert ref["system"].values.tolist() == list(range(N))
-    assert not np.isin(ref["end_reason"].values, [EndReason.CAPPED, EndReason.FAILED]).any()
-    assert (ref["attempts"].values == 1).all()
-    for i in (0, 7):                       # the driver adds nothing to what the engine computes
-        direct = scatter_pop.schema.records_to_dataset([integrate_system(spec, i)], spec.planets.count)
-        assert_physics_equal(ref.sel(system=[i]), direct)
-        assert int(ref["seed"].sel(system=i)) == draw_system(spec, i).seed
+    ds = scatter_pop.run_ensemble(spec, out=tmp_path / "run", workers=2, **QUIET)
+    validate_dataset(ds)
+    assert ds["system"].values.tolist() == list(range(N))
+    assert not np.isin(ds["end_reason"].values, [EndReason.CAPPED, EndReason.FAILED]).any()
+    assert (ds["attempts"].values == 1).all()
+    assert [int(s) for s in ds["seed"].values] == [draw_system(spec, i).seed for i in range(N)]
+    assert_physics_equal(ds, ref)
 
 
 def test_one_worker_with_batches_of_one_gives_the_same_physics(ref, tmp_path):
     spec = parse_spec(spec_text(systems=N, end_time=T_END))
-    with connect(ClusterConfig(), workers=1) as one:
+    with connect(ClusterConfig(dashboard_port=0), workers=1) as one:
         assert len(one.nthreads()) == 1
         ds = scatter_pop.run_ensemble(spec, out=tmp_path / "run", client=one, batch_size=1, **QUIET)
     assert len(part_files(tmp_path / "run")) == N
@@ -83,12 +82,11 @@ def test_growing_the_run_computes_only_the_new_systems(ref, tmp_path, client):
     assert_physics_equal(ds, ref)
 
 
-def test_capped_systems_continue_from_checkpoints_bit_identically(tmp_path, tmp_path_factory, client):
+def test_capped_systems_continue_from_checkpoints_bit_identically(tmp_path, client):
     # short check intervals so that the tiny cap stops systems part-way (the cap is tested after
     # each interval); the uncapped reference has the same intervals
     chunks = "check_orbits = 10.0\n"
-    uncapped = reference(tmp_path_factory.mktemp("ref_chunks"), systems=6, end_time=T_END, extra=chunks,
-                         client=client)
+    uncapped = reference(systems=6, end_time=T_END, extra=chunks)
     out = tmp_path / "run"
     capped_spec = parse_spec(spec_text(systems=6, end_time=T_END, extra=chunks + "wall_seconds_max = 0.005\n"))
     first = scatter_pop.run_ensemble(capped_spec, out=out, client=client, batch_size=1, **QUIET)

@@ -45,7 +45,7 @@ def test_worker_killed_mid_task_loses_and_duplicates_nothing(tmp_path):
     n, t_end = 4, 10000.0                    # ~1 s per system: long enough to be caught running
     spec = parse_spec(spec_text(systems=n, end_time=t_end))
     out, result, errors = tmp_path / "run", {}, []
-    with connect(ClusterConfig(), workers=2) as client:
+    with connect(ClusterConfig(dashboard_port=0), workers=2) as client:
         def drive():
             try:
                 result["ds"] = scatter_pop.run_ensemble(spec, out=out, client=client, batch_size=1,
@@ -81,13 +81,12 @@ def test_worker_killed_mid_task_loses_and_duplicates_nothing(tmp_path):
     assert_physics_equal(ds.sel(system=[victim]), direct)
 
 
-def test_system_that_kills_every_worker_is_isolated_and_recorded_as_failed(tmp_path, tmp_path_factory,
-                                                                          monkeypatch):
+def test_system_that_kills_every_worker_is_isolated_and_recorded_as_failed(tmp_path, monkeypatch):
     n, poison = 10, 5
     monkeypatch.setenv(FAULT_ENV, str(poison))     # test-only hook read inside the worker task
     spec = parse_spec(spec_text(systems=n))
     lines = []
-    with connect(ClusterConfig(), workers=2) as client:
+    with connect(ClusterConfig(dashboard_port=0), workers=2) as client:
         # scatter-pop runs with allowed-failures = ALLOWED_FAILURES (5); each death costs a worker
         # restart (~2 s here), so this test lowers the bound on its own scheduler to 1
         assert client.run_on_scheduler(lambda dask_scheduler: dask_scheduler.allowed_failures) == ALLOWED_FAILURES
@@ -115,7 +114,7 @@ def test_system_that_kills_every_worker_is_isolated_and_recorded_as_failed(tmp_p
     assert math.isnan(float(bad["t_end"]))
 
     others = [i for i in range(n) if i != poison]
-    ref = reference(tmp_path_factory.mktemp("ref_poison"), systems=n)
+    ref = reference(systems=n)
     assert_physics_equal(ds, ref, systems=others)
     status = status_lines(tmp_path / "run")
     assert f"failed       1: systems {poison} (compute again with scatter-pop run SPEC --retry-failed)" in status
