@@ -94,6 +94,10 @@ def main(argv=None) -> None:
         efficiency = speedup / (top["workers"] / base["workers"])
         print(f"speed-up {top['workers']} vs {base['workers']} workers: {speedup:.2f}; "
               f"parallel efficiency {100 * efficiency:.1f} %")
+        slower = (top["integration"] / top["systems"]) / (base["integration"] / base["systems"])
+        print(f"mean integration time per system, {top['workers']} vs {base['workers']} workers: x{slower:.2f} "
+              "(above 1: the workers compete for CPU -- other processes or too few cores -- which the "
+              "driver cannot help)")
 
 
 if __name__ == "__main__":

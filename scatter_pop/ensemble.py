@@ -226,7 +226,7 @@ class EnsembleRun:
                            scheduler=client.scheduler.address, finished=None,
                            started=time.strftime("%Y-%m-%dT%H:%M:%S%z"))
         log(plan.summary())
-        progress = Progress(spec.run.systems, plan.tally, self.progress_interval)
+        progress = Progress(spec.run.systems, plan.tally, self.progress_interval, emit=log)
         pending: deque[Task] = deque()
         inflight = {}
         from distributed import as_completed

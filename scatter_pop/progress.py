@@ -85,13 +85,13 @@ class Progress:
         Counts so far, including systems finished by earlier runs in the folder.
     interval : float
         Minimum time between two printed lines, s.
-    stream : file-like
-        Where lines go (default: standard output).
+    emit : callable, optional
+        Receives each line (default: print to standard output, flushed).
     """
 
-    def __init__(self, total: int, tally: Tally, interval: float = 10.0, stream=None):
+    def __init__(self, total: int, tally: Tally, interval: float = 10.0, emit=None):
         self.total, self.tally, self.interval = total, tally, interval
-        self.stream = stream if stream is not None else sys.stdout
+        self.emit = emit if emit is not None else (lambda line: print(line, file=sys.stdout, flush=True))
         self.start = time.monotonic()
         self.at_start = tally.systems
         self.last_print = -np.inf
@@ -117,4 +117,4 @@ class Progress:
         now = time.monotonic()
         if (force and self.tally.systems != self.last_line_systems) or now - self.last_print >= self.interval:
             self.last_print, self.last_line_systems = now, self.tally.systems
-            print(self.line(), file=self.stream, flush=True)
+            self.emit(self.line())

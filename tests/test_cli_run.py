@@ -83,3 +83,18 @@ def test_missing_spec_and_non_run_folders(tmp_path, capsys):
     assert main(["status", str(tmp_path / "mine")]) == 2
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and "not a scatter-pop run folder" in err[0]
+
+
+@pytest.mark.slow
+def test_run_attached_to_a_running_scheduler(tmp_path):
+    from scatter_pop.cluster import ClusterConfig, connect
+    spec = write_spec(tmp_path / "tiny.toml", systems=3)
+    with connect(ClusterConfig(dashboard_port=0), workers=1) as client:
+        address = client.scheduler.address
+        proc = run_cli("run", spec, "--out", tmp_path / "run", "--scheduler", address)
+        assert proc.returncode == 0, proc.stderr
+        # the batches went through that scheduler: it has seen tasks of the prefix "integrate"
+        prefixes = client.run_on_scheduler(lambda dask_scheduler: sorted(dask_scheduler.task_prefixes))
+    assert "integrate" in prefixes
+    assert "done: 3 systems" in proc.stdout
+    assert open_ensemble(tmp_path / "run").sizes["system"] == 3

@@ -117,3 +117,24 @@ def test_run_ensemble_accepts_a_spec_file_and_default_folder(tmp_path, client):
     ds = scatter_pop.run_ensemble(path, client=client, **QUIET)
     assert (tmp_path / "tiny_out" / "ensemble.nc").is_file() and ds.sizes["system"] == 2
     assert (tmp_path / "tiny_out" / "spec.toml").read_text() == path.read_text()
+
+
+def test_system_whose_integration_raises_is_isolated_then_retried(tmp_path, client):
+    out = tmp_path / "run"
+    scatter_pop.run_ensemble(parse_spec(spec_text(systems=2)), out=out, client=client, **QUIET)
+    (out / "checkpoints" / "system_00000002.bin").write_bytes(b"not a checkpoint")    # corrupt file
+    spec = parse_spec(spec_text(systems=4))
+    lines = []
+    ds = scatter_pop.run_ensemble(spec, out=out, client=client, batch_size=2, progress_interval=60,
+                                  log=lines.append)
+    assert "systems 2-3: InputError: checkpoint" in "\n".join(lines)
+    assert any(line.startswith("system 2: InputError: checkpoint") and line.endswith(
+        "recorded as failed (traceback in failures.log)") for line in lines)
+    assert ds["end_reason"].values.tolist()[2] == EndReason.FAILED
+    log = (out / "failures.log").read_text()
+    assert log.startswith("--- system 2 (") and "Traceback" in log and "read_checkpoint" in log
+    ref = reference(systems=4)
+    assert_physics_equal(ds, ref, systems=[0, 1, 3])
+    (out / "checkpoints" / "system_00000002.bin").unlink()                          # the cause removed
+    again = scatter_pop.run_ensemble(spec, out=out, client=client, retry_failed=True, **QUIET)
+    assert_physics_equal(again, ref)
