@@ -169,7 +169,7 @@ def draw_a_e(ax, points: Table, lines: Table, *, target: Table | None = None, ti
     ax.set_ylabel("final eccentricity e")
     if title:
         ax.set_title(title)
-    ax.legend(loc="upper left", markerscale=1.5)
+    ax.legend(loc="best", markerscale=1.5)
 
 
 def draw_branching(ax, table: Table) -> None:

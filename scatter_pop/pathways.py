@@ -82,6 +82,9 @@ class Pathways:
         Matching planets flagged as tidal-circularisation candidates.
     pericentre : Spread
         q = a(1 − e) of the matching planets [AU].
+    unsettled_matching : int
+        Matching systems stopped at the end time with >= 2 planets left
+        (their orbits may still change).
     """
 
     n_matching: int
@@ -95,6 +98,7 @@ class Pathways:
     instability_all: Spread
     tidal_candidates: int
     pericentre: Spread
+    unsettled_matching: int = 0
 
 
 def _lost(frame, sel) -> dict:
@@ -128,7 +132,7 @@ def pathways(frame, sys_match, planet_match) -> Pathways:
         instability_matching=Spread.of(frame.t_encounter[sys_match]),
         instability_all=Spread.of(frame.t_encounter),
         tidal_candidates=int(frame.s_tidal[planet_match].sum()),
-        pericentre=Spread.of(q))
+        pericentre=Spread.of(q), unsettled_matching=int(np.sum(frame.unsettled[sys_match])))
 
 
 @dataclass(frozen=True)

@@ -107,7 +107,9 @@ def caveats(r: EnsembleJudgement, j: Judgement) -> list[str]:
                    f"{_num(s_hi, 'AU')}). Point-mass gravity is scale-free (a -> λa, t -> λ^1.5 t), "
                    f"but collisions between planets, with the star and tidal disruption are not: "
                    f"run an ensemble placed at the target's separation rather than rescaling.")
-    if t.mstar is not None:
+    if t.mstar is not None and math.isfinite(r.mass_scale) and abs(r.mass_scale - 1.0) < 1e-9:
+        out.append("Scaling: the target's star has the ensemble's mass; masses compared as simulated.")
+    elif t.mstar is not None:
         factor = (f"= {r.mass_scale:.3g} " if math.isfinite(r.mass_scale) else "(per ensemble) ")
         out.append(f"Scaling: simulated masses were multiplied by M*_target / M*_ensemble {factor}to keep "
                    f"the planet-to-star mass ratios; the orbits were not rescaled.")
@@ -118,8 +120,12 @@ def caveats(r: EnsembleJudgement, j: Judgement) -> list[str]:
         out.append(f"Projection: the counts use one random draw of sin i per planet (seed {j.seed}); "
                    f"the likelihood-weighted fractions average over orientations instead.")
     if r.n_unsettled:
-        out.append(f"Unfinished: {r.n_unsettled} systems reached the end time ({_num(r.t_end_max, 'yr')}) "
-                   f"with two or more planets not certified Hill-stable; their orbits may still change.")
+        text = (f"Unfinished: {r.n_unsettled} systems reached the end time ({_num(r.t_end_max, 'yr')}) "
+                f"with two or more planets not certified Hill-stable; their orbits may still change")
+        if r.pathways.n_matching:
+            text += (f" ({r.pathways.unsettled_matching} of the {r.pathways.n_matching} matching systems "
+                     f"among them)")
+        out.append(text + ".")
     if r.pathways.tidal_candidates:
         out.append(f"Tides: {r.pathways.tidal_candidates} of the {r.pathways.n_planets} matching planets "
                    f"have pericentres below the circularisation threshold; tides may shrink and "
@@ -147,6 +153,11 @@ def _ensemble_lines(r: EnsembleJudgement, j: Judgement) -> list[str]:
     for word, q in (("systems", ws), ("survivors", wv)):
         lines.append(f"  {word:<10}{_pct(q.value):>17}   bootstrap {conf}: {_pct(q.low)} to "
                      f"{_pct(q.high)}; expected matches {q.expected:.3g}")
+    lines.append("verdict: " + verdict_sentence(r, j))
+    if pw.n_matching == 0:
+        lines.append("pathways and starting configurations: no matching system to describe.")
+        lines.append("caveats:")
+        return lines + [f"  - {c}" for c in caveats(r, j)]
     lines.append(f"pathways of the {pw.n_matching} matching systems [all {pw.n_all} systems]:")
     lm, la = pw.lost_matching, pw.lost_all
     lines.append(f"  other planets: {lm['ejected']} ejected, {lm['merged']} merged, {lm['star']} lost to "
@@ -164,7 +175,6 @@ def _ensemble_lines(r: EnsembleJudgement, j: Judgement) -> list[str]:
         lines.append(f"  {c.quantity}: median {_num(c.median_matching)}{unit} vs {_num(c.median_all)}{unit}"
                      f" over all; Cliff's delta {_num(c.cliffs_delta)}, KS p = {_num(c.ks_pvalue)} "
                      f"(n = {c.n_matching} vs {c.n_rest})")
-    lines.append("verdict: " + verdict_sentence(r, j))
     lines.append("caveats:")
     lines += [f"  - {c}" for c in caveats(r, j)]
     return lines

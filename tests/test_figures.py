@@ -201,3 +201,27 @@ def test_figures_bad_flags(tmp_path, capsys, extra, flag):
     err = capsys.readouterr().err
     assert code == 2 and len(err.strip().splitlines()) == 1 and flag in err
     assert not (tmp_path / "f").exists()                         # nothing written
+
+
+def test_paper_figure_script_builds_figures_and_tables(tmp_path):
+    # analysis/paper_figures.py: two runs -> figure set, outcome table, comparison tables
+    import importlib.util
+    from pathlib import Path
+    path = Path(__file__).resolve().parent.parent / "analysis" / "paper_figures.py"
+    spec = importlib.util.spec_from_file_location("paper_figures", path)
+    module = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(module)
+    recs2, _, _ = _two_planet_run()
+    recs3, _ = _three_planet_run()
+    a = write_run(tmp_path / "two", recs2, 2)
+    b = write_run(tmp_path / "three", recs3, 3)
+    out = tmp_path / "paper"
+    assert module.main([str(a), str(b), "--labels", "two giants,three giants", "--out", str(out),
+                        "--draws", "5", "--permutations", "50"]) == 0
+    for name in FIGURES:
+        assert (out / f"{name}.pdf").read_bytes().startswith(b"%PDF-")
+    tex = (out / "outcomes_table.tex").read_text()
+    assert "two giants" in tex and "three giants" in tex and r"\bottomrule" in tex
+    assert "all runs pooled" in (out / "comparison.txt").read_text()
+    branching = {(r["ensemble"], r["branch"]): int(r["k"]) for r in _read(out / "branching_ratios.csv")}
+    assert branching[("two giants", "ejection")] == 10 and branching[("three giants", "several")] == 24
