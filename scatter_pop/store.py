@@ -257,6 +257,7 @@ class RunFolder:
             "run_seed": np.uint64(spec.run.seed),
             "systems": np.int64(systems),
             "integrator": spec.integration.integrator,
+            "star_mass": float(spec.star.mass),          # M_sun
             "spec_digest": spec.digest(),
             "spec_toml": spec.text,
             **versions(),

@@ -173,6 +173,7 @@ def test_ensemble_opens_with_plain_xarray_with_cf_attributes(gathered):
             assert attrs["flag_values"].tolist() == [int(c) for c in v.flags]
             assert attrs["flag_meanings"].split() == [c.word for c in v.flags]
     assert ds.attrs["spec_toml"] == SPEC.text and int(ds.attrs["run_seed"]) == SPEC.run.seed
+    assert ds.attrs["star_mass"] == SPEC.star.mass and int(ds.attrs["systems"]) == 4
     for key, value in versions().items():
         assert ds.attrs[key] == value
     created = dt.datetime.fromisoformat(ds.attrs["date_created"])                     # ACDD 1.3
