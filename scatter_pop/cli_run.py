@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import sys
+
 from .errors import InputError
 from .spec import load_spec
 
@@ -61,7 +63,12 @@ def execute(args) -> int:
             "one worker per core" if resolved.kind == "local" else f"{resolved.kind} jobs")
         print(f"cluster: {resolved.kind} ({where}); nothing was computed (--dry-run)")
         return 0
-    ds = run.run()
+    try:
+        ds = run.run()
+    except SystemExit:          # SIGTERM (preemption, scancel): the cluster module unwinds with this
+        print("scatter-pop run: terminated; finished parts are kept, rerun the same command to resume",
+              file=sys.stderr)
+        raise
     reasons = ds["end_reason"]
     words = ", ".join(f"{w} {int((reasons.values == v).sum())}"
                       for v, w in zip(reasons.attrs["flag_values"], reasons.attrs["flag_meanings"].split())

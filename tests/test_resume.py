@@ -100,3 +100,23 @@ def test_changed_spec_is_refused_with_status_2_and_nothing_touched(interrupted, 
     assert proc.stdout == "" and len(proc.stderr.strip().splitlines()) == 1
     assert "run.seed" in proc.stderr and "--fresh" in proc.stderr and "Traceback" not in proc.stderr
     assert {p.name: p.stat().st_mtime_ns for p in out.rglob("*") if p.is_file()} == before
+
+
+def test_sigterm_stops_the_run_cleanly_and_it_resumes(tmp_path, ref):
+    """Preemption / scancel send SIGTERM: the driver stops its cluster, says how to resume, and the
+    rerun completes with the same result."""
+    spec = write_spec(tmp_path / "spec.toml", systems=N, end_time=T_END)
+    out = tmp_path / "run"
+    proc = start_cli("run", spec, "--out", out, "--workers", "2", "--batch-size", "1")
+    try:
+        wait_for(lambda: part_files(out), 180, "a first part file")
+        os.kill(proc.pid, signal.SIGTERM)
+        _, err = proc.communicate(timeout=60)
+    finally:
+        kill_group(proc)
+    assert proc.returncode == 143
+    assert "terminated; finished parts are kept, rerun the same command to resume" in err
+    assert "Traceback" not in err
+    rerun = run_cli("run", spec, "--out", out, "--workers", "2")
+    assert rerun.returncode == 0, rerun.stderr
+    assert_physics_equal(open_ensemble(out), ref)
