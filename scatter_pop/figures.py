@@ -84,6 +84,12 @@ def ensemble_colour(i: int) -> str:
     return OKABE_ITO[_ENSEMBLE_COLOURS[i % len(_ENSEMBLE_COLOURS)]]
 
 
+def _legend(ax, **kw) -> None:
+    """A legend, if anything on the axes carries a label (empty samples draw nothing)."""
+    if ax.get_legend_handles_labels()[0]:
+        ax.legend(**kw)
+
+
 def draw_e_histogram(ax, hist: Table, *, title: str = "", target_e: float | None = None) -> None:
     """Stacked histogram of final e by outcome branch (one ensemble's rows of the table)."""
     bottom = np.zeros(0)
@@ -106,7 +112,7 @@ def draw_e_histogram(ax, hist: Table, *, title: str = "", target_e: float | None
     ax.set_ylabel("surviving planets")
     if title:
         ax.set_title(title)
-    ax.legend(loc="upper right")
+    _legend(ax, loc="upper right")
 
 
 def _p(p: float, permutations: int = 0) -> str:
@@ -142,7 +148,7 @@ def draw_e_cdf(ax, cdf: Table, stats: Table | None = None, *, target_e: float | 
     ax.set_ylim(0.0, 1.0)
     ax.set_xlabel("eccentricity e")
     ax.set_ylabel("cumulative fraction")
-    ax.legend(loc="lower right")
+    _legend(ax, loc="lower right")
 
 
 def draw_a_e(ax, points: Table, lines: Table, *, target: Table | None = None, title: str = "") -> None:
@@ -169,7 +175,7 @@ def draw_a_e(ax, points: Table, lines: Table, *, target: Table | None = None, ti
     ax.set_ylabel("final eccentricity e")
     if title:
         ax.set_title(title)
-    ax.legend(loc="best", markerscale=1.5)
+    _legend(ax, loc="best", markerscale=1.5)
 
 
 def draw_branching(ax, table: Table) -> None:
@@ -186,7 +192,7 @@ def draw_branching(ax, table: Table) -> None:
     ax.set_xticks(x0, [BRANCH_LABELS[b].replace(" ", "\n", 1) for b in BRANCHES], fontsize=6)
     ax.set_ylabel("fraction of systems")
     ax.set_ylim(0.0, 1.0)
-    ax.legend(loc="upper right")
+    _legend(ax, loc="upper right")
 
 
 def draw_instability(ax, table: Table) -> None:
@@ -199,7 +205,7 @@ def draw_instability(ax, table: Table) -> None:
     ax.set_ylim(0.0, 1.0)
     ax.set_xlabel("time of first close encounter [yr]")
     ax.set_ylabel("fraction of systems")
-    ax.legend(loc="upper left")
+    _legend(ax, loc="upper left")
 
 
 def draw_e_vs_mass_ratio(ax, points: Table, medians: Table | None = None, *, title: str = "") -> None:
@@ -221,7 +227,7 @@ def draw_e_vs_mass_ratio(ax, points: Table, medians: Table | None = None, *, tit
     ax.set_ylabel("final eccentricity e")
     if title:
         ax.set_title(title)
-    ax.legend(loc="upper left", markerscale=1.5)
+    _legend(ax, loc="upper left", markerscale=1.5)
 
 
 def save_figure(fig, stem, formats=("pdf",)) -> list[Path]:

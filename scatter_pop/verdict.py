@@ -102,7 +102,9 @@ def caveats(r: EnsembleJudgement, j: Judgement) -> list[str]:
     out.append(cuts)
     a_lo, a_hi = w.a_range(t)
     s_lo, s_hi = r.a_survivors
-    if not (math.isfinite(s_lo) and s_hi >= a_lo and s_lo <= a_hi):
+    if not math.isfinite(s_lo):
+        out.append("No bound survivors in the systems used: nothing to compare with.")
+    elif not (s_hi >= a_lo and s_lo <= a_hi):
         out.append(f"Scaling: no survivor lies in the a window (survivors span {_num(s_lo)} to "
                    f"{_num(s_hi, 'AU')}). Point-mass gravity is scale-free (a -> λa, t -> λ^1.5 t), "
                    f"but collisions between planets, with the star and tidal disruption are not: "

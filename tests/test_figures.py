@@ -225,3 +225,18 @@ def test_paper_figure_script_builds_figures_and_tables(tmp_path):
     assert "all runs pooled" in (out / "comparison.txt").read_text()
     branching = {(r["ensemble"], r["branch"]): int(r["k"]) for r in _read(out / "branching_ratios.csv")}
     assert branching[("two giants", "ejection")] == 10 and branching[("three giants", "several")] == 24
+
+
+def test_figure_set_of_a_run_without_usable_systems(tmp_path):
+    # every system failed: the figures are drawn empty (no crash, no legend warnings) and the
+    # CSVs hold no rows of survivors
+    import warnings
+    recs = [system(i, [planet(1.0, 3.0, 2.0, 0.5), planet(1.0, 4.0, 3.0, 0.5)], reason=EndReason.FAILED)
+            for i in range(3)]
+    run = write_run(tmp_path / "failed", recs, 2)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        assert cli.main(["figures", str(run), "--format", "png", "--out", str(tmp_path / "f")]) == 0
+    assert all((tmp_path / "f" / f"{n}.png").is_file() for n in FIGURES)
+    assert sum(int(r["count"]) for r in _read(tmp_path / "f" / "e_histogram_by_branch.csv")) == 0
+    assert all(int(r["n"]) == 0 for r in _read(tmp_path / "f" / "branching_ratios.csv"))

@@ -306,3 +306,13 @@ def test_cli_missing_run_folder(tmp_path, capsys):
     code, _, err = _run(["judge", str(tmp_path / "nowhere"), "--e", "0.9", "--e-err", "0.02", "--a", "9",
                          "--a-err", "1.5", "--msini", "5", "--msini-err", "0.5"], capsys)
     assert code == 2 and "DIR" in err and len(err.strip().splitlines()) == 1
+
+
+def test_ensemble_with_no_usable_system_says_so():
+    ds = dataset([system(i, _match(), reason=EndReason.FAILED) for i in range(3)], 2)
+    res = judge(ds, _target(true_mass=True))
+    r = res.ensembles[0]
+    assert (r.systems.n, r.excluded["failed"]) == (0, 3) and math.isnan(r.systems.fraction)
+    text = render_text(res)
+    assert "nothing can be said" in text and "No bound survivors" in text
+    json.dumps(to_dict(res))                                     # NaN rendered as null: valid JSON
