@@ -174,6 +174,8 @@ class _SystemRun:
         sim.dt = self._step_size() if integ.integrator in HYBRID_INTEGRATORS else self.p_in / 100.0
         self.ledger.e0 = sim.energy()
         self.ledger.l0 = list(sim.angular_momentum())
+        self.ledger.l_scale = sum(sim.particles[k].m * float(np.linalg.norm(np.cross(sim.particles[k].xyz,
+                                  sim.particles[k].vxyz))) for k in range(sim.N))
         self._set_search_radii()
         return sim
 
@@ -291,6 +293,8 @@ class _SystemRun:
         outcome = clibrebound.reb_collision_resolve_merge(sim_pointer, collision)
         self.ledger.radius[keep_name] = float(ps[keep].r)
         self._set_star_radius(exclude=gone)
+        if self._finished(leaving=1):
+            clibrebound.reb_simulation_stop(sim_pointer)     # ends after this step: t_end = event time
         return outcome
 
     def _star_pass(self, sim_pointer, collision, k: int) -> int:
@@ -315,6 +319,8 @@ class _SystemRun:
         ps[0].r = self.initial.star_radius
         outcome = clibrebound.reb_collision_resolve_merge(sim_pointer, collision)
         self._set_star_radius(exclude=k)
+        if self._finished(leaving=1):
+            clibrebound.reb_simulation_stop(sim_pointer)
         return outcome
 
     # ------------------------------------------------------------------ escapes (between steps)
@@ -349,8 +355,13 @@ class _SystemRun:
         sim.exit_max_distance = radius
 
     # ------------------------------------------------------------------ the run
+    def _finished(self, leaving: int = 0) -> bool:
+        """True when nothing is left to integrate once ``leaving`` more planets are gone."""
+        left = self.sim.N - 1 - leaving
+        return left == 0 or (left == 1 and self.settle)
+
     def _integrate_to(self, t: float) -> None:
-        while self.sim.t < t:
+        while self.sim.t < t and not self._finished():
             try:
                 self.sim.integrate(t, exact_finish_time=0)
             except rebound.Escape:

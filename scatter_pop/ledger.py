@@ -58,6 +58,10 @@ class Ledger:
         Total energy at t = 0 (M_sun AU^2 yr^-2).
     l0 : list of float
         Total angular momentum vector at t = 0 (M_sun AU^2 yr^-1).
+    l_scale : float
+        Sum of the bodies' angular-momentum magnitudes at t = 0 (centre-of-mass frame,
+        M_sun AU^2 yr^-1): the scale of the relative angular-momentum error (equal to
+        |l0| for prograde coplanar orbits, finite when orbits counter-rotate).
     energy_removed : float
         Sum of E_before - E_after over every merger and removal: E(t) + energy_removed
         is conserved by exact dynamics.
@@ -76,6 +80,7 @@ class Ledger:
     chunks_done: int = 0
     e0: float = math.nan
     l0: list = field(default_factory=lambda: [math.nan] * 3)
+    l_scale: float = math.nan
     energy_removed: float = 0.0
     angmom_removed: list = field(default_factory=lambda: [0.0, 0.0, 0.0])
     t_first_encounter: float = math.nan

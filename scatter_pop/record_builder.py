@@ -70,6 +70,6 @@ def build_record(initial: InitialSystem, ledger: Ledger, survivors: dict, *, rea
         index=initial.index, seed=initial.seed, planets=tuple(planets), t_end=float(t_end), end_reason=reason,
         t_first_encounter=ledger.t_first_encounter,
         energy_error=float((energy + ledger.energy_removed - ledger.e0) / abs(ledger.e0)),
-        angmom_error=float(np.linalg.norm(l_now - l0) / np.linalg.norm(l0)),
+        angmom_error=float(np.linalg.norm(l_now - l0) / ledger.l_scale),
         steps=int(steps), wall_seconds=ledger.wall_seconds, integrator=integrator)
 

@@ -73,7 +73,22 @@ def test_head_on_collision_merges_conserving_mass_and_momentum():
 def test_merger_in_settling_mode_stops_with_one_planet():
     rec = run(head_on(), 100.0)
     assert rec.end_reason == EndReason.ONE_PLANET
-    assert rec.t_end < period(5.0) * 100 and rec.count(Fate.MERGED) == 1
+    assert rec.count(Fate.MERGED) == 1 and rec.t_end == rec.planets[1].t_fate   # stops at the merger
+
+
+def test_equal_mass_head_on_merger_falls_into_the_star():
+    # equal and opposite momenta: the merged body is left at rest 5 AU from the star and falls in
+    # radially in t_ff = pi/(2 sqrt 2) sqrt(r^3 / G M) = P(5 AU) / (4 sqrt 2) (two-body free fall)
+    initial = system([dict(m=MJ, a=5.0, e=0.0), dict(m=MJ, a=5.0, e=0.0, inc=math.pi, M=-0.5)])
+    rec = run(initial, 100.0, reference=True)               # do not stop when one planet is left
+    p0, p1 = rec.planets
+    assert (p0.fate, p1.fate) == (Fate.HIT_STAR, Fate.MERGED) and p1.merged_into == 0
+    assert rec.end_reason == EndReason.NO_PLANETS
+    t_ff = period(5.0, m=2 * MJ) / (4 * math.sqrt(2))
+    assert p0.t_fate - p1.t_fate == pytest.approx(t_ff, rel=0.01)
+    assert p0.mass_final == 2 * MJ and p0.e_final == pytest.approx(1.0, abs=1e-3)
+    assert rec.t_end == p0.t_fate                          # stopped at the event, not at a chunk end
+    assert abs(rec.energy_error) < 1e-8 and rec.angmom_error < 1e-8   # L0 ~ 0 here: scale sum |L_k|
 
 
 # --------------------------------------------------------------------------- ejection
