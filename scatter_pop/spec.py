@@ -94,14 +94,14 @@ class IntegrationSpec:
     end_time: float | None = None          # yr
     end_orbits: float | None = None        # initial inner orbits
     epsilon: float = 1e-9                  # IAS15 accuracy parameter
-    bs_epsilon: float = 1e-10              # BS tolerance (bs, and trace's BS part)
+    bs_epsilon: float = 1e-10              # BS tolerance (integrator bs)
     steps_per_orbit: float = 50.0          # hybrid step = current shortest period / this
     r_crit_hill: float = 3.0               # hybrid switching radius, in Hill radii
     ejection_distance: float = 1000.0      # AU from the centre of mass
     wall_seconds_max: float = 7200.0       # per system
     check_orbits: float = 100.0            # initial inner orbits between stopping checks
     stop_when_settled: bool = True         # False: reference mode, run to the end time
-    hill_margin: float = 1.1               # Hill-stable pair needs LHS/RHS >= this
+    hill_margin: float = 1.01              # Hill-stable pair needs LHS/RHS >= this (see README)
 
     def end_time_years(self, inner_period: float) -> float:
         """End time in years given the initial inner period (yr)."""
