@@ -17,6 +17,11 @@ _API = {
     "integrate_system": "scatter_pop.integrate",
     "run_ensemble": "scatter_pop.ensemble",
     "open_ensemble": "scatter_pop.store",
+    "load_catalogue": "scatter_pop.observed",
+    "compare": "scatter_pop.compare",
+    "two_sample": "scatter_pop.statistics",
+    "judge": "scatter_pop.judge",
+    "write_figure_set": "scatter_pop.figure_set",
     "InputError": "scatter_pop.errors",
 }
 
