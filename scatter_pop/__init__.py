@@ -4,6 +4,8 @@ Data flow: spec -> initial conditions -> integration of one system -> outcome
 record -> ensemble store -> statistics -> figures and reports.
 
 The public API is imported lazily so that ``import scatter_pop`` stays cheap.
+Functions that share their module's name live there: ``scatter_pop.compare.compare``,
+``scatter_pop.judge.judge``.
 """
 
 from importlib import import_module
@@ -18,9 +20,7 @@ _API = {
     "run_ensemble": "scatter_pop.ensemble",
     "open_ensemble": "scatter_pop.store",
     "load_catalogue": "scatter_pop.observed",
-    "compare": "scatter_pop.compare",
     "two_sample": "scatter_pop.statistics",
-    "judge": "scatter_pop.judge",
     "write_figure_set": "scatter_pop.figure_set",
     "InputError": "scatter_pop.errors",
 }
