@@ -13,6 +13,10 @@ A :class:`Plan` is made from the part files already on disk (:mod:`scatter_pop.s
 
 Continued and retried systems are recomputed per part and their rows replaced in that part.
 
+Consolidation: once :data:`CONSOLIDATE_PARTS` parts of adjacent ranges (none of them already a
+merged one) are on disk, they are merged into one file, so that a long run leaves a few hundred
+files rather than one per batch (file-count quotas, resume time: each part costs one file open).
+
 Automatic batch size: single systems until one has finished, then as many systems as fit in
 :data:`TARGET_TASK_SECONDS` at the mean cost per system so far, at most a quarter of the remaining
 systems per worker (so the end of the run stays balanced) and at most :data:`MAX_AUTO_BATCH`.
@@ -20,6 +24,7 @@ systems per worker (so the end of the run stays balanced) and at most :data:`MAX
 
 from __future__ import annotations
 
+import bisect
 import math
 from dataclasses import dataclass
 
@@ -31,27 +36,28 @@ from .progress import Tally
 from .spec import EnsembleSpec
 from .store import Part, RunFolder, read_parts
 
-__all__ = ["Task", "Plan", "make_plan", "TARGET_TASK_SECONDS", "MAX_AUTO_BATCH"]
+__all__ = ["Task", "Plan", "make_plan", "TARGET_TASK_SECONDS", "MAX_AUTO_BATCH", "CONSOLIDATE_PARTS"]
 
 TARGET_TASK_SECONDS = 60.0
 MAX_AUTO_BATCH = 100
+CONSOLIDATE_PARTS = 64
 
 
 @dataclass(frozen=True)
 class Task:
     """Systems integrated by one Dask task, in order.
 
-    ``part_first`` is None for new systems (their records become a new part) or the first index
-    of the part whose rows the results replace.
+    New systems (``redo`` False) become a new part; the results of a ``redo`` task replace the
+    rows of the part that holds those systems.
     """
 
     indices: tuple[int, ...]
-    part_first: int | None = None
+    redo: bool = False
     budgets: tuple[float, ...] | None = None     # per system wall_seconds_max, s (None: the spec's)
 
     def split(self) -> list["Task"]:
         budgets = self.budgets or (None,) * len(self.indices)
-        return [Task((i,), self.part_first, None if b is None else (b,))
+        return [Task((i,), self.redo, None if b is None else (b,))
                 for i, b in zip(self.indices, budgets)]
 
 
@@ -89,7 +95,7 @@ class Plan:
                 again.update({int(i): cap for i in idx[reason == int(EndReason.FAILED)]})
             if again:
                 order = sorted(again)
-                self.redo.append(Task(tuple(order), p.first, tuple(again[i] for i in order)))
+                self.redo.append(Task(tuple(order), True, tuple(again[i] for i in order)))
         self.n_continue = sum(len(t.indices) for t in self.redo)
         missing = np.flatnonzero(~held)
         self.n_new = int(missing.size)
@@ -136,15 +142,35 @@ class Plan:
     # ---- results
     def store(self, task: Task, data: xr.Dataset) -> None:
         """Write the records of a finished task (new part or rows replaced in its part)."""
-        if task.part_first is None:
+        if not task.redo:
             part = self.folder.write_part(data, self.spec)
             self.parts[part.first] = part
             self.tally.add(data)
+            self._consolidate_around(part)
             return
-        old = self.parts[task.part_first]
+        old = self._holding(int(data["system"].values[0]))
         self.tally.add(old.data.sel(system=data["system"].values), sign=-1)
         self.parts[old.first] = self.folder.replace_systems(old, data, self.spec)
         self.tally.add(data)
+
+    def _holding(self, index: int) -> Part:
+        firsts = sorted(self.parts)
+        return self.parts[firsts[bisect.bisect_right(firsts, index) - 1]]
+
+    def _consolidate_around(self, part: Part) -> None:
+        """Merge the block of adjacent unmerged parts around ``part`` once it is large enough."""
+        firsts = sorted(k for k, p in self.parts.items() if not p.consolidated)
+        i = firsts.index(part.first)
+        lo, hi = i, i
+        while lo > 0 and self.parts[firsts[lo - 1]].last + 1 == self.parts[firsts[lo]].first:
+            lo -= 1
+        while hi + 1 < len(firsts) and self.parts[firsts[hi]].last + 1 == self.parts[firsts[hi + 1]].first:
+            hi += 1
+        if hi - lo + 1 < CONSOLIDATE_PARTS:
+            return
+        block = [self.parts.pop(k) for k in firsts[lo:hi + 1]]
+        merged = self.folder.consolidate(block, self.spec)
+        self.parts[merged.first] = merged
 
     def parts_list(self) -> list[Part]:
         return [self.parts[k] for k in sorted(self.parts)]

@@ -23,10 +23,8 @@ import fcntl
 import json
 import os
 import platform
-import re
 import socket
 from contextlib import contextmanager
-from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
@@ -34,6 +32,7 @@ import xarray as xr
 
 from .atomic import atomic_write_netcdf, atomic_write_text
 from .errors import InputError
+from .parts import Part, drop_contained, load, part_name, scan, stack
 from .schema import validate_dataset
 from .spec import EnsembleSpec, parse_spec
 
@@ -46,13 +45,7 @@ ENSEMBLE_FILE = "ensemble.nc"
 PARTS, CHECKPOINTS, DAMAGED = "parts", "checkpoints", "damaged"
 FAILURE_LOG = "failures.log"
 LOCK_FILE = ".lock"
-_PART_RE = re.compile(r"^part_(\d+)_(\d+)\.nc$")
 ENSEMBLE_COMPRESSION = {"zlib": True, "complevel": 4}
-
-
-def part_name(first: int, last: int) -> str:
-    """File name of the part holding systems ``first``..``last`` (inclusive)."""
-    return f"part_{first:08d}_{last:08d}.nc"
 
 
 def _utc_now() -> str:
@@ -70,26 +63,6 @@ def versions() -> dict[str, str]:
             "numpy_version": np.__version__, "dask_version": dask.__version__,
             "xarray_version": xr.__version__, "netcdf4_version": netCDF4.__version__,
             "python_version": platform.python_version()}
-
-
-def _load(path: Path) -> xr.Dataset:
-    with xr.open_dataset(path, engine="netcdf4") as ds:
-        return ds.load()
-
-
-# --------------------------------------------------------------------------- parts
-@dataclass
-class Part:
-    """One part file and its (loaded) records."""
-
-    path: Path
-    first: int
-    last: int
-    data: xr.Dataset
-
-    @property
-    def indices(self) -> np.ndarray:
-        return self.data["system"].values
 
 
 class RunFolder:
@@ -180,12 +153,13 @@ class RunFolder:
         return stale
 
     def scan_parts(self, spec: EnsembleSpec) -> tuple[list[Part], list[str]]:
-        """Load every part; move unreadable or foreign ones to ``damaged/``.
+        """Load every part; move unreadable or foreign ones to ``damaged/``; delete leftovers of
+        an interrupted consolidation.
 
         Returns the good parts (sorted by first index) and one report line per part moved aside.
         """
         good, reports = [], []
-        for path, first, last, part, problem in _part_files(self, spec):
+        for path, first, last, part, problem in scan(self.parts_dir, spec.digest(), spec.planets.count):
             if part is not None:
                 good.append(part)
                 continue
@@ -193,14 +167,13 @@ class RunFolder:
             os.replace(path, self.damaged_dir / f"{path.name}.{_dt.datetime.now():%Y%m%dT%H%M%S%f}")
             reports.append(f"part {path.name}: {problem}; moved to {DAMAGED}/, systems {first}-{last} "
                            "will be recomputed")
-        seen: dict[int, str] = {}
-        for part in good:
-            for i in part.indices.tolist():
-                if i in seen:
-                    raise InputError(f"{self.parts_dir}: system {i} is in both {seen[i]} and "
-                                     f"{part.path.name}; remove one of them by hand")
-                seen[i] = part.path.name
-        return good, reports
+        try:
+            kept, contained = drop_contained(good)
+        except ValueError as exc:
+            raise InputError(f"{self.parts_dir}: {exc}; remove one of them by hand") from None
+        for part in contained:                  # already held by a consolidated part
+            part.path.unlink()
+        return kept, reports
 
     def write_part(self, data: xr.Dataset, spec: EnsembleSpec) -> Part:
         """Write records (a schema dataset of consecutive systems) as one part file, atomically."""
@@ -217,10 +190,18 @@ class RunFolder:
 
     def replace_systems(self, part: Part, new: xr.Dataset, spec: EnsembleSpec) -> Part:
         """Rewrite ``part`` with the systems in ``new`` replacing its rows (atomic)."""
-        keep = part.data.drop_sel(system=new["system"].values)
-        merged = xr.concat([keep, new], dim="system", data_vars="minimal", coords="minimal",
-                           compat="override", combine_attrs="override").sortby("system")
-        return self.write_part(merged, spec)
+        return self.write_part(stack([part.data.drop_sel(system=new["system"].values), new]), spec)
+
+    def consolidate(self, parts: list[Part], spec: EnsembleSpec) -> Part:
+        """Merge parts of adjacent ranges into one file, then delete them (a crash in between
+        leaves pieces that :meth:`scan_parts` recognises as contained and deletes)."""
+        merged = stack([p.data for p in parts])
+        merged.attrs["consolidated"] = 1
+        whole = self.write_part(merged, spec)
+        for part in parts:
+            if part.path != whole.path:
+                part.path.unlink()
+        return whole
 
     # ---- gathering
     def gather(self, parts: list[Part], spec: EnsembleSpec, systems: int | None = None,
@@ -234,8 +215,7 @@ class RunFolder:
         datasets = [p.data for p in sorted(parts, key=lambda p: p.first) if p.first < n]
         if not datasets:
             raise InputError(f"{self.path}: no finished systems yet")
-        ds = xr.concat(datasets, dim="system", data_vars="minimal", coords="minimal",
-                       compat="override", combine_attrs="drop_conflicts").sortby("system")
+        ds = stack(datasets)
         ds = ds.sel(system=ds["system"].values < n)
         if write and not np.array_equal(ds["system"].values, np.arange(n)):
             raise RuntimeError(f"{self.path}: parts do not hold systems 0..{n - 1} exactly once")
@@ -276,20 +256,6 @@ class RunFolder:
                         and ds.attrs.get("spec_digest") == spec.digest())
         except (OSError, RuntimeError, ValueError, KeyError):
             return False
-
-
-def _part_problem(data: xr.Dataset, first: int, last: int, digest: str, n_planets: int) -> str | None:
-    try:
-        validate_dataset(data)
-    except ValueError as exc:
-        return f"not a part file ({exc})"
-    if data.attrs.get("spec_digest") != digest:
-        return "written for another spec"
-    if not np.array_equal(data["system"].values, np.arange(first, last + 1)):
-        return f"holds systems other than {first}-{last}"
-    if data.sizes.get("planet") != n_planets:
-        return f"has {data.sizes.get('planet')} planets per system, the spec {n_planets}"
-    return None
 
 
 # --------------------------------------------------------------------------- preparing and opening
@@ -359,13 +325,13 @@ def open_ensemble(path, *, partial: bool = False) -> xr.Dataset:
     """
     p = Path(path)
     if p.is_file():
-        ds = _load(p)
+        ds = load(p)
         validate_dataset(ds)
         return ds
     folder = RunFolder(p)
     spec = folder.stored_spec()
     if folder.ensemble_is_current(spec):
-        return _load(folder.ensemble_path)
+        return load(folder.ensemble_path)
     parts, _ = read_parts(folder, spec)
     done = sum(int((part.indices < spec.run.systems).sum()) for part in parts)
     if not partial or not parts:
@@ -375,31 +341,16 @@ def open_ensemble(path, *, partial: bool = False) -> xr.Dataset:
 
 
 def read_parts(folder: RunFolder, spec: EnsembleSpec) -> tuple[list[Part], list[str]]:
-    """Parts that load and match ``spec``, without moving anything (read-only callers)."""
+    """Parts that load and match ``spec``, without moving or deleting anything (read-only callers);
+    and one line per part that does not."""
     good, bad = [], []
-    for path, _, _, part, problem in _part_files(folder, spec):
+    for path, _, _, part, problem in scan(folder.parts_dir, spec.digest(), spec.planets.count):
         if part is None:
             bad.append(f"{path.name}: {problem}")
         else:
             good.append(part)
-    return good, bad
-
-
-def _part_files(folder: RunFolder, spec: EnsembleSpec):
-    """Yield (path, first, last, Part or None, problem or None) for each part file."""
-    if not folder.parts_dir.is_dir():
-        return
-    digest = spec.digest()
-    for path in sorted(folder.parts_dir.iterdir()):
-        m = _PART_RE.match(path.name)
-        if not m:
-            continue
-        first, last = int(m.group(1)), int(m.group(2))
-        try:
-            data = _load(path)
-        except (OSError, RuntimeError, ValueError, KeyError) as exc:
-            first_line = (str(exc).splitlines() or [""])[0]
-            yield path, first, last, None, f"unreadable ({type(exc).__name__}: {first_line})"
-            continue
-        problem = _part_problem(data, first, last, digest, spec.planets.count)
-        yield path, first, last, (Part(path, first, last, data) if problem is None else None), problem
+    try:
+        kept, _ = drop_contained(good)
+    except ValueError as exc:
+        raise InputError(f"{folder.parts_dir}: {exc}") from None
+    return kept, bad

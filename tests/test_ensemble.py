@@ -138,3 +138,14 @@ def test_system_whose_integration_raises_is_isolated_then_retried(tmp_path, clie
     (out / "checkpoints" / "system_00000002.bin").unlink()                          # the cause removed
     again = scatter_pop.run_ensemble(spec, out=out, client=client, retry_failed=True, **QUIET)
     assert_physics_equal(again, ref)
+
+
+def test_many_small_parts_are_consolidated_without_changing_anything(ref, tmp_path, client, monkeypatch):
+    import scatter_pop.plan as plan
+    monkeypatch.setattr(plan, "CONSOLIDATE_PARTS", 4)
+    spec = parse_spec(spec_text(systems=N, end_time=T_END))
+    ds = scatter_pop.run_ensemble(spec, out=tmp_path / "run", client=client, batch_size=1, **QUIET)
+    files = part_files(tmp_path / "run")
+    assert len(files) < N // 2                      # 12 single-system batches, merged by fours
+    assert_physics_equal(ds, ref)
+    assert_physics_equal(scatter_pop.open_ensemble(tmp_path / "run", partial=True), ref)

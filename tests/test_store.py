@@ -236,3 +236,27 @@ def test_readme_documents_every_variable_with_its_units():
             for name in cells[0].replace("`", "").split(","):
                 documented[name.strip()] = cells[2]
     assert {v.name: v.units for v in VARIABLES} == {v.name: documented.get(v.name) for v in VARIABLES}
+
+
+def test_consolidation_merges_parts_and_an_interrupted_one_is_tidied(tmp_path):
+    folder = folder_with_parts(tmp_path, ranges=((0, 0), (1, 2), (3, 3)))
+    parts, _ = read_parts(folder, SPEC)
+    merged = folder.consolidate(parts, SPEC)
+    assert [p.name for p in folder.parts_dir.iterdir()] == ["part_00000000_00000003.nc"]
+    assert merged.consolidated and merged.data.attrs["consolidated"] == 1
+    assert_physics_equal(read_parts(folder, SPEC)[0][0].data, part_data(0, 3))
+    # a crash between writing the merged part and deleting its pieces leaves a piece behind:
+    # readers ignore it, the next run deletes it
+    folder.write_part(part_data(1, 2), SPEC)
+    kept, bad = read_parts(folder, SPEC)
+    assert [(p.first, p.last) for p in kept] == [(0, 3)] and bad == []
+    assert len(list(folder.parts_dir.iterdir())) == 2
+    kept, reports = folder.scan_parts(SPEC)
+    assert [(p.first, p.last) for p in kept] == [(0, 3)] and reports == []
+    assert [p.name for p in folder.parts_dir.iterdir()] == ["part_00000000_00000003.nc"]
+
+
+def test_overlapping_parts_are_refused(tmp_path):
+    folder = folder_with_parts(tmp_path, ranges=((0, 2), (2, 3)))
+    with pytest.raises(InputError, match="overlaps"):
+        folder.scan_parts(SPEC)
