@@ -7,6 +7,14 @@ IAU value) -> integration in chunks of ``check_orbits`` initial inner orbits
 so the trajectory does not depend on where chunks end) -> between chunks: the
 stopping rules, the hybrid step, the escape radius -> an outcome record.
 
+Hybrid integrators (TRACE, MERCURIUS) take a fixed step that must resolve the
+most demanding orbit: 2 pi sqrt(q^3 / (G M (1+e))) / ``steps_per_orbit``.  It
+is checked every ``HYBRID_CHECK_STEPS`` steps inside a chunk, and re-chosen
+after a merger, a star contact or an ejection, or when the wanted step differs
+from the current one by more than a factor ``STEP_CHANGE`` (a planet scattered
+onto a tighter or more eccentric orbit); otherwise it is kept, so that a
+symplectic map is not perturbed by needless changes.
+
 Events inside a step come through REBOUND's collision search with a Python
 resolve function (called only when some pair is inside its search radius, not
 every step), which looks at each listed pair and decides:
@@ -71,6 +79,8 @@ __all__ = ["integrate_system", "integrate_initial", "HYBRID_INTEGRATORS", "STAR_
 
 STAR_NAME = "star"
 HYBRID_INTEGRATORS = ("trace", "mercurius")
+HYBRID_CHECK_STEPS = 2000      # hybrid step re-checked every this many steps (~2 % Python overhead)
+STEP_CHANGE = 1.25             # ... and re-chosen when the wanted step differs by more than this factor
 ENCOUNTER_MARGIN = 1.25        # search radii cover 1.25 mutual Hill radii until the first encounter
 ESCAPE_MARGIN = 1.05           # a bound planet beyond the ejection distance: escape radius 1.05 x apocentre
 MIN_DT_FRACTION = 1e-4         # IAS15 step floor: 1e-4 of the shortest contact free-fall time
@@ -123,6 +133,8 @@ class _SystemRun:
         self.t_end = integration.end_time_years(self.p_in)
         self.chunk = integration.check_orbits * self.p_in
         self.error = None
+        self.events = False            # a merger, star contact or ejection since the step was chosen
+        self.step_changes = []         # (t, dt) each time the hybrid step was re-chosen (diagnostics)
         identity = {"initial": asdict(initial), "integration": asdict(integration),
                     "outcomes": asdict(outcomes)}
         identity["integration"].pop("wall_seconds_max")
@@ -293,6 +305,7 @@ class _SystemRun:
         outcome = clibrebound.reb_collision_resolve_merge(sim_pointer, collision)
         self.ledger.radius[keep_name] = float(ps[keep].r)
         self._set_star_radius(exclude=gone)
+        self.events = True
         if self._finished(leaving=1):
             clibrebound.reb_simulation_stop(sim_pointer)     # ends after this step: t_end = event time
         return outcome
@@ -319,6 +332,7 @@ class _SystemRun:
         ps[0].r = self.initial.star_radius
         outcome = clibrebound.reb_collision_resolve_merge(sim_pointer, collision)
         self._set_star_radius(exclude=k)
+        self.events = True
         if self._finished(leaving=1):
             clibrebound.reb_simulation_stop(sim_pointer)
         return outcome
@@ -340,6 +354,7 @@ class _SystemRun:
             sim.move_to_com()
             self.ledger.book(sim.energy() - e_before, np.array(sim.angular_momentum()) - l_before)
             self._set_star_radius()
+            self.events = True
         self._set_escape_radius()
 
     def _set_escape_radius(self) -> None:
@@ -361,6 +376,25 @@ class _SystemRun:
         return left == 0 or (left == 1 and self.settle)
 
     def _integrate_to(self, t: float) -> None:
+        """Advance to t (first step past it); a hybrid step is checked every HYBRID_CHECK_STEPS steps."""
+        if self.integ.integrator not in HYBRID_INTEGRATORS:
+            self._advance(t)
+            return
+        while self.sim.t < t and not self._finished():
+            self._advance(min(t, self.sim.t + HYBRID_CHECK_STEPS * self.sim.dt))
+            self._follow_orbits()
+
+    def _follow_orbits(self) -> None:
+        """Re-choose the hybrid step after an event or a large change of the orbits."""
+        if self.sim.N < 2:
+            return
+        want = self._step_size()
+        if self.events or not want / STEP_CHANGE <= self.sim.dt <= want * STEP_CHANGE:
+            self.sim.dt = want
+            self.step_changes.append((float(self.sim.t), float(want)))
+        self.events = False
+
+    def _advance(self, t: float) -> None:
         while self.sim.t < t and not self._finished():
             try:
                 self.sim.integrate(t, exact_finish_time=0)
@@ -404,7 +438,7 @@ class _SystemRun:
             if reason is None:
                 self._set_search_radii()
                 if self.integ.integrator in HYBRID_INTEGRATORS:
-                    self.sim.dt = self._step_size()
+                    self._follow_orbits()
                 if spent_before + time.perf_counter() - start >= self.integ.wall_seconds_max:
                     reason = EndReason.CAPPED
         self.ledger.wall_seconds = spent_before + time.perf_counter() - start
