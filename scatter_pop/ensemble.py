@@ -109,7 +109,7 @@ def failed_record(spec: EnsembleSpec, index: int, attempts: int) -> SystemRecord
     planets = tuple(
         PlanetRecord(mass_initial=float(m), a_initial=float(a), e_initial=float(e), inc_initial=float(i),
                      radius_initial=float(r), mass_final=nan, a_final=nan, e_final=nan, inc_final=nan,
-                     q_final=nan, radius_final=nan, fate=Fate.SURVIVED, t_fate=nan)
+                     q_final=nan, radius_final=nan, fate=Fate.SURVIVED, t_fate=nan)   # fate: -1 in the dataset
         for m, a, e, i, r in zip(ic.mass, ic.a, ic.e, ic.inc, ic.radius))
     return SystemRecord(index=index, seed=int(ic.seed), planets=planets, t_end=nan,
                         end_reason=EndReason.FAILED, attempts=attempts,

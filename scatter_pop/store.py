@@ -265,9 +265,10 @@ def _flat(d: dict, prefix: str = "") -> dict:
 
 
 def _identity_differences(old: EnsembleSpec, new: EnsembleSpec) -> list[str]:
+    """``key old -> new`` for each identity entry that differs (internal units)."""
     a, b = _flat(old.identity()), _flat(new.identity())
     keys = sorted(k for k in a.keys() | b.keys() if a.get(k) != b.get(k))
-    return ["run.seed" if k == "seed" else k for k in keys]       # spec keys, as the user wrote them
+    return [f"{'run.seed' if k == 'seed' else k} {a.get(k)!r} -> {b.get(k)!r}" for k in keys]
 
 
 def prepare_folder(spec: EnsembleSpec, out, *, fresh: bool = False, dry_run: bool = False,
@@ -297,8 +298,9 @@ def prepare_folder(spec: EnsembleSpec, out, *, fresh: bool = False, dry_run: boo
         changed = ["(unreadable)"]
     if changed and not fresh:
         raise InputError(f"--out {str(folder.path)!r}: holds a run of a different spec (changed: "
-                         f"{', '.join(changed[:6])}{', ...' if len(changed) > 6 else ''}); rerun with --fresh "
-                         "to move the old run aside, or choose another --out")
+                         f"{'; '.join(changed[:3])}{'; ...' if len(changed) > 3 else ''}); only run.name, "
+                         "run.systems, run.batch_size, integration.wall_seconds_max and [cluster] may change "
+                         "in a run folder; rerun with --fresh to move the old run aside, or choose another --out")
     if fresh:
         if folder.locked_by_other():
             raise InputError(f"--fresh: {str(folder.path)!r} is in use by a running scatter-pop run")

@@ -98,7 +98,7 @@ def test_changed_spec_is_refused_with_status_2_and_nothing_touched(interrupted, 
     proc = run_cli("run", changed, "--out", out)
     assert proc.returncode == 2
     assert proc.stdout == "" and len(proc.stderr.strip().splitlines()) == 1
-    assert "run.seed" in proc.stderr and "--fresh" in proc.stderr and "Traceback" not in proc.stderr
+    assert "run.seed 12345 -> 777" in proc.stderr and "--fresh" in proc.stderr and "Traceback" not in proc.stderr
     assert {p.name: p.stat().st_mtime_ns for p in out.rglob("*") if p.is_file()} == before
 
 
