@@ -110,10 +110,12 @@ def test_sigterm_stops_the_run_cleanly_and_it_resumes(tmp_path, ref):
     proc = start_cli("run", spec, "--out", out, "--workers", "2", "--batch-size", "1")
     try:
         wait_for(lambda: part_files(out), 180, "a first part file")
+        running = status_lines(out)               # status only reads: safe during a run
         os.kill(proc.pid, signal.SIGTERM)
         _, err = proc.communicate(timeout=60)
     finally:
         kill_group(proc)
+    assert any(line.startswith("state        running since") and f"pid {proc.pid}" in line for line in running)
     assert proc.returncode == 143
     assert "terminated; finished parts are kept, rerun the same command to resume" in err
     assert "Traceback" not in err
