@@ -108,6 +108,7 @@ def make_paths(spec, names=None) -> list[Path]:
               if name != base.integrator]
     if names:
         known = [p.label for p in paths]
+        names = ["default" if n == base.integrator else n for n in names]   # the default's integrator
         unknown = [n for n in names if n not in known]
         if unknown:
             raise InputError(f"--paths {','.join(unknown)}: unknown; choose from {', '.join(known)}")
