@@ -148,6 +148,8 @@ class _SystemRun:
             with warnings.catch_warnings():       # the resolve function is set again just below
                 warnings.filterwarnings("ignore", message="You have to reset function pointers")
                 self.sim = rebound.Simulation(blob)
+            for particle, name in zip(self.sim.particles, self.ledger.bodies):
+                particle.name = name                # names are not trusted after a reload (ledger.bodies)
         else:
             self.ledger = Ledger(identity=self.identity)
             self.sim = self._build()
@@ -165,6 +167,7 @@ class _SystemRun:
                     inc=ini.inc[i], omega=ini.omega[i], Omega=ini.node[i],
                     f=true_anomaly(ini.mean_anomaly[i], ini.e[i]), name=planet_name(i))
             self.ledger.radius[planet_name(i)] = ini.radius[i]
+        self.ledger.bodies = [STAR_NAME] + [planet_name(i) for i in range(ini.count)]
         sim.move_to_com()
         if not all(math.isfinite(c) for k in range(sim.N) for c in (*sim.particles[k].xyz, *sim.particles[k].vxyz)):
             raise InputError(f"initial system {ini.index}: the elements give no finite position "
@@ -218,6 +221,10 @@ class _SystemRun:
         dv = np.subtract(ps[k].vxyz, ps[0].vxyz)
         return relative_orbit(dx, dv, self.sim.G * (ps[0].m + ps[k].m))
 
+    def _name(self, k: int) -> str:
+        """Name of the body at simulation index k (the engine's own list, see Ledger.bodies)."""
+        return self.ledger.bodies[k]
+
     def _size(self, k: int) -> float:
         a, _, _ = self._astro(k)
         if 0.0 < a < math.inf:
@@ -228,7 +235,7 @@ class _SystemRun:
     def _end_distance(self, k: int) -> float:
         ps = self.sim.particles
         return star_contact_distance(ps[0].m, self.initial.star_radius, ps[k].m,
-                                     self.ledger.radius[ps[k].name], self.out.disruption_eta)
+                                     self.ledger.radius[self._name(k)], self.out.disruption_eta)
 
     def _set_star_radius(self, exclude: int | None = None) -> None:
         """Star search radius: every planet is listed once within its end distance."""
@@ -241,12 +248,12 @@ class _SystemRun:
         ps, n = self.sim.particles, self.sim.N
         if self.ledger.encounter_found or n < 3:
             for k in range(1, n):
-                ps[k].r = self.ledger.radius[ps[k].name]
+                ps[k].r = self.ledger.radius[self._name(k)]
         else:
             radii = encounter_radii(ps[0].m, [ps[k].m for k in range(1, n)],
                                     [self._size(k) for k in range(1, n)], ENCOUNTER_MARGIN)
             for k in range(1, n):
-                ps[k].r = max(radii[k - 1], self.ledger.radius[ps[k].name])
+                ps[k].r = max(radii[k - 1], self.ledger.radius[self._name(k)])
         self._set_star_radius()
 
     def _step_size(self) -> float:
@@ -266,7 +273,7 @@ class _SystemRun:
         _, _, q = self._astro(k)
         return FateEntry(fate=int(fate), t=float(self.sim.t), merged_into=int(merged_into), mass=float(ps[k].m),
                          a=float(orbit.a), e=float(orbit.e), inc=float(orbit.inc), omega=float(orbit.omega),
-                         node=float(orbit.Omega), q=float(q), radius=float(self.ledger.radius[ps[k].name]))
+                         node=float(orbit.Omega), q=float(q), radius=float(self.ledger.radius[self._name(k)]))
 
     # ------------------------------------------------------------------ contacts (inside a step)
     def _resolve(self, sim_pointer, collision):
@@ -293,48 +300,61 @@ class _SystemRun:
             if float(np.linalg.norm(dx)) < r_hill:
                 self.ledger.t_first_encounter = float(self.sim.t)
                 self._set_search_radii()
-        ri, rj = self.ledger.radius[ps[i].name], self.ledger.radius[ps[j].name]
+        ri, rj = self.ledger.radius[self._name(i)], self.ledger.radius[self._name(j)]
         if d_min >= ri + rj:
             return 0
-        keep, gone = (i, j) if i < j else (j, i)
-        self.ledger.fates[ps[gone].name] = self._fate_entry(gone, Fate.MERGED, planet_index(ps[keep].name))
+        keep, gone = (i, j) if i < j else (j, i)   # REBOUND keeps the lower index
+        entry = self._fate_entry(gone, Fate.MERGED, planet_index(self._name(keep)))
         m, x, v = self._arrays()
-        self.ledger.book(*merge_jump(m, x, v, i, j, self.sim.G))
+        jump = merge_jump(m, x, v, i, j, self.sim.G)
+        search = ps[i].r, ps[j].r
         ps[i].r, ps[j].r = ri, rj                    # merged radius from the physical radii
-        keep_name = ps[keep].name
         outcome = clibrebound.reb_collision_resolve_merge(sim_pointer, collision)
-        self.ledger.radius[keep_name] = float(ps[keep].r)
+        if outcome == 0:                             # REBOUND merges a body at most once a step
+            ps[i].r, ps[j].r = search
+            return 0
+        self.ledger.fates[self._name(gone)] = entry
+        self.ledger.book(*jump)
+        self.ledger.radius[self._name(keep)] = float(ps[keep].r)
         self._set_star_radius(exclude=gone)
         self.events = True
         if self._finished(leaving=1):
             clibrebound.reb_simulation_stop(sim_pointer)     # ends after this step: t_end = event time
+        del self.ledger.bodies[gone]                 # REBOUND removes `gone` as this returns
         return outcome
 
     def _star_pass(self, sim_pointer, collision, k: int) -> int:
         ps = self.sim.particles
         _, _, q = self._astro(k)
         kind = classify_star_pass(q, ps[0].m, self.initial.star_radius, ps[k].m,
-                                  self.ledger.radius[ps[k].name], self.out.disruption_eta)
+                                  self.ledger.radius[self._name(k)], self.out.disruption_eta)
         if kind is None:
             return 0
         fate = Fate.HIT_STAR if kind == "hit_star" else Fate.DISRUPTED
         if self.integ.integrator != "mercurius":    # "line" search: wait until the pass is reached
-            r_p = self.ledger.radius[ps[k].name]
+            r_p = self.ledger.radius[self._name(k)]
             limit = (self.initial.star_radius + r_p if fate == Fate.HIT_STAR else
                      float(tidal_disruption_radius(ps[k].m, r_p, ps[0].m, self.out.disruption_eta)))
             dx = np.subtract(ps[k].xyz, ps[0].xyz)
             dv = np.subtract(ps[k].vxyz, ps[0].vxyz)
             if float(dx @ dv) < 0.0 and line_min_distance(dx, dv, self.sim.dt_last_done) >= limit:
                 return 0                             # still falling in: decide at a later step
-        self.ledger.fates[ps[k].name] = self._fate_entry(k, fate)
+        entry = self._fate_entry(k, fate)
         m, x, v = self._arrays()
-        self.ledger.book(*merge_jump(m, x, v, 0, k, self.sim.G))
+        jump = merge_jump(m, x, v, 0, k, self.sim.G)
+        search = ps[0].r
         ps[0].r = self.initial.star_radius
         outcome = clibrebound.reb_collision_resolve_merge(sim_pointer, collision)
+        if outcome == 0:                             # REBOUND merges a body at most once a step
+            ps[0].r = search
+            return 0
+        self.ledger.fates[self._name(k)] = entry
+        self.ledger.book(*jump)
         self._set_star_radius(exclude=k)
         self.events = True
         if self._finished(leaving=1):
             clibrebound.reb_simulation_stop(sim_pointer)
+        del self.ledger.bodies[k]                    # REBOUND removes the planet as this returns
         return outcome
 
     # ------------------------------------------------------------------ escapes (between steps)
@@ -347,10 +367,10 @@ class _SystemRun:
             if not unbound:
                 break
             k = unbound[0]
-            name = sim.particles[k].name
-            self.ledger.fates[name] = self._fate_entry(k, Fate.EJECTED)
+            self.ledger.fates[self._name(k)] = self._fate_entry(k, Fate.EJECTED)
             e_before, l_before = sim.energy(), np.array(sim.angular_momentum())
             sim.remove(int(k))
+            del self.ledger.bodies[k]
             sim.move_to_com()
             self.ledger.book(sim.energy() - e_before, np.array(sim.angular_momentum()) - l_before)
             self._set_star_radius()
@@ -452,7 +472,7 @@ class _SystemRun:
     # ------------------------------------------------------------------ the record
     def _record(self, reason: EndReason) -> SystemRecord:
         sim = self.sim
-        survivors = {sim.particles[k].name: self._fate_entry(k, Fate.SURVIVED) for k in range(1, sim.N)}
+        survivors = {self._name(k): self._fate_entry(k, Fate.SURVIVED) for k in range(1, sim.N)}
         return build_record(self.initial, self.ledger, survivors, reason=reason, t_end=sim.t,
                             energy=sim.energy(), angmom=sim.angular_momentum(), steps=sim.steps_done,
                             integrator=self.integ.integrator, circularisation_q=self.out.circularisation_q)

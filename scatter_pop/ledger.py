@@ -73,6 +73,11 @@ class Ledger:
         Planet name -> FateEntry, for planets no longer in the simulation.
     radius : dict
         Body name -> physical radius (AU); the simulation's own radii are search radii.
+    bodies : list of str
+        Name of each body in simulation order (star first). The engine keeps this list
+        itself and never reads REBOUND's particle names: in rebound 5.2.2 the names of a
+        simulation rebuilt from a binary snapshot can change once other simulations in the
+        process are freed (seen in Dask workers continuing capped systems).
     wall_seconds : float
         Wall time spent integrating, over all segments (s).
     """
@@ -86,6 +91,7 @@ class Ledger:
     t_first_encounter: float = math.nan
     fates: dict = field(default_factory=dict)
     radius: dict = field(default_factory=dict)
+    bodies: list = field(default_factory=list)
     wall_seconds: float = 0.0
     identity: dict = field(default_factory=dict)
 

@@ -237,6 +237,33 @@ def test_capped_run_continued_from_checkpoint_equals_the_uncapped_run(tmp_path, 
     assert rec.wall_seconds > 0
 
 
+def test_continuation_does_not_trust_rebound_names_after_a_reload(tmp_path):
+    """rebound 5.2.2: a simulation rebuilt from a binary snapshot can see its particle names
+    change once other simulations in the process are freed (seen in Dask workers running many
+    systems: ['star', 'p1', 'p1']). The engine keeps its own list of who is who; here every
+    checkpoint's REBOUND names are scrambled, and the continued record must still equal the
+    uncapped one."""
+    import rebound
+
+    from scatter_pop.ledger import read_checkpoint, write_checkpoint
+
+    spec = parse_spec(CAPPED % ("ias15", 80.0, 20))
+    whole = integrate_system(spec, 2)
+    assert whole.count(Fate.MERGED) >= 1
+    capped = replace(spec, integration=replace(spec.integration, wall_seconds_max=1e-9))
+    path = tmp_path / "system2.ckpt"
+    rec = integrate_system(capped, 2, checkpoint_path=path)
+    while rec.end_reason == EndReason.CAPPED:
+        ledger, blob = read_checkpoint(path)
+        sim = rebound.Simulation(blob)
+        names = [p.name for p in sim.particles]
+        for particle, name in zip(sim.particles, names[::-1]):   # what a corrupted reload looks like
+            particle.name = name
+        write_checkpoint(path, ledger, sim.__reduce__()[1][0])
+        rec = integrate_system(capped, 2, checkpoint_path=path)
+    assert same(rec, whole)
+
+
 def test_checkpoint_of_another_system_is_refused(tmp_path):
     spec = parse_spec(CAPPED % ("ias15", 80.0, 20))
     capped = replace(spec, integration=replace(spec.integration, wall_seconds_max=1e-9))
