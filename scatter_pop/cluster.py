@@ -143,6 +143,20 @@ def _wait_for_submission(cluster, kind: str) -> None:
                   "continuing to wait for workers", RuntimeWarning, stacklevel=3)
 
 
+TERM_GRACE_SECONDS = 20.0   # clean-up time after SIGTERM before the process ends itself
+
+
+def _hard_exit(status: int) -> None:
+    import multiprocessing
+
+    for child in multiprocessing.active_children():
+        child.kill()
+    sys.stderr.write(f"scatter-pop: clean-up after SIGTERM took over {TERM_GRACE_SECONDS:.0f} s; exiting "
+                     "(finished parts are kept, rerun the same command to resume)\n")
+    sys.stderr.flush()
+    os._exit(status)
+
+
 @contextmanager
 def _sigterm_unwinds() -> Iterator[None]:
     """While inside, SIGTERM raises SystemExit(143) in the main thread, so ``finally`` runs."""
@@ -151,6 +165,15 @@ def _sigterm_unwinds() -> Iterator[None]:
         return
 
     def handler(signum, frame):
+        # Unwind once; a second SIGTERM must not break the clean-up half-way. If the clean-up
+        # hangs (a worker busy inside a long C integration step, an event loop interrupted at a
+        # bad moment), end the process after a grace period: every finished part is already on
+        # disk, so a rerun resumes; local worker processes are killed first, batch jobs end when
+        # their workers lose the scheduler.
+        signal.signal(signal.SIGTERM, signal.SIG_IGN)
+        timer = threading.Timer(TERM_GRACE_SECONDS, _hard_exit, args=(128 + signum,))
+        timer.daemon = True
+        timer.start()
         raise SystemExit(128 + signum)
 
     previous = signal.signal(signal.SIGTERM, handler)

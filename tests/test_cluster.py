@@ -375,3 +375,31 @@ def test_readme_documents_every_cluster_key():
     section = readme.split("<!-- section: cluster -->", 1)[1].split("\n## ", 1)[0]
     for f in fields(ClusterConfig):
         assert f"| `{f.name}` |" in section, f.name
+
+
+def test_sigterm_with_a_hanging_clean_up_still_ends_the_process(tmp_path):
+    """Preemption sends SIGTERM and, a little later, SIGKILL (SLURM's KillWait, 30 s by default,
+    from memory of the slurm.conf manual). If the clean-up after SIGTERM hangs, the driver must
+    still end by itself, with exit status 143 and the resume hint."""
+    script = tmp_path / "hang.py"
+    script.write_text(textwrap.dedent("""
+        import sys, time
+        from scatter_pop import cluster
+        cluster.TERM_GRACE_SECONDS = 1.0
+        with cluster._sigterm_unwinds():
+            try:
+                print("ready", flush=True)
+                time.sleep(60)
+            finally:
+                time.sleep(60)          # a clean-up that never finishes
+    """))
+    proc = subprocess.Popen([sys.executable, str(script)], stdout=subprocess.PIPE, stderr=subprocess.PIPE,
+                            text=True)
+    try:
+        assert proc.stdout.readline().strip() == "ready"
+        proc.send_signal(signal.SIGTERM)
+        _, err = proc.communicate(timeout=30)
+    finally:
+        proc.kill()
+    assert proc.returncode == 143
+    assert "rerun the same command to resume" in err and "Traceback" not in err
