@@ -217,7 +217,7 @@ def format_table(summary: dict) -> str:
     """A plain-text table of the summary (one line per path)."""
     head = (f"{'path':<10} {'integrator':<10} {'sys/CPU-s':>9} {'x ref':>6} {'med |dE/E|':>10} "
             f"{'max |dE/E|':>10} {'ejected':>7} {'merged':>6} {'star':>5} {'KS e':>6} {'AD e':>6} "
-            f"{'KS a':>6} {'AD a':>6}")
+            f"{'KS a':>6} {'AD a':>6} {'peak MB':>7}")
     lines = [head, "-" * len(head)]
     for label, s in summary.items():
         f = s["fates"]
@@ -225,7 +225,8 @@ def format_table(summary: dict) -> str:
         ps = " ".join(f"{v:6.3f}" if v is not None else f"{'-':>6}" for v in p)
         lines.append(f"{label:<10} {s.get('integrator', ''):<10} {s['systems_per_cpu_second']:9.3f} "
                      f"{s['speedup']:6.2f} {s['energy_error_median']:10.1e} {s['energy_error_max']:10.1e} "
-                     f"{f['ejected']:7.3f} {f['merged']:6.3f} {f['hit_star'] + f['tidally_disrupted']:5.3f} {ps}")
+                     f"{f['ejected']:7.3f} {f['merged']:6.3f} {f['hit_star'] + f['tidally_disrupted']:5.3f} {ps} "
+                     f"{s['worker_peak_rss_mb']:7.0f}")
     return "\n".join(lines)
 
 

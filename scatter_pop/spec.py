@@ -90,7 +90,7 @@ class PlanetsSpec:
 
 @dataclass(frozen=True)
 class IntegrationSpec:
-    integrator: str = "ias15"
+    integrator: str = "bs"
     end_time: float | None = None          # yr
     end_orbits: float | None = None        # initial inner orbits
     epsilon: float = 1e-9                  # IAS15 accuracy parameter
