@@ -117,7 +117,11 @@ def test_sigterm_stops_the_run_cleanly_and_it_resumes(tmp_path, ref):
         kill_group(proc)
     assert any(line.startswith("state        running since") and f"pid {proc.pid}" in line for line in running)
     assert proc.returncode == 143
-    assert "terminated; finished parts are kept, rerun the same command to resume" in err
+    # Either the clean-up finished (the usual case) or it hung and the driver ended itself after
+    # cluster.TERM_GRACE_SECONDS (seen about once in five CI runs on 2 loaded cores): both
+    # keep every finished part and say how to resume; the rerun below checks the result.
+    assert ("terminated; finished parts are kept, rerun the same command to resume" in err
+            or ("clean-up after SIGTERM took over" in err and "rerun the same command to resume" in err)), err
     assert "Traceback" not in err
     rerun = run_cli("run", spec, "--out", out, "--workers", "2")
     assert rerun.returncode == 0, rerun.stderr
