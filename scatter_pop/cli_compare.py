@@ -15,6 +15,7 @@ from pathlib import Path
 from .constants import DAY_S, MJUP_MSUN, YEAR_S
 from .cuts import SampleCuts, check_range
 from .errors import InputError
+from .flags import integer_flag
 from .observed import ColumnMap, load_catalogue
 from .report_tables import FORMATS, render
 from .schema import ENERGY_TOLERANCE_DEFAULT
@@ -84,16 +85,6 @@ def _number(text: str, flag: str, what: str) -> float:
     return value
 
 
-def _integer(text: str, flag: str, minimum: int) -> int:
-    try:
-        value = int(text)
-    except (TypeError, ValueError):
-        raise InputError(f"{flag} = {text!r}: expected an integer >= {minimum}") from None
-    if value < minimum:
-        raise InputError(f"{flag} = {text!r}: expected an integer >= {minimum}")
-    return value
-
-
 def _pair(text: str | None, flag: str, unit: str, example: str):
     if text is None:
         return None
@@ -153,12 +144,12 @@ def _options(args):
     return CompareOptions(
         cuts=cuts, survey=survey, project_sin_i=not args.true_mass, rescale_a=rescale, star_mass=star_mass,
         energy_tolerance=tol, include_capped=args.include_capped, tidal=args.tidal,
-        permutations=_integer(args.permutations, "--permutations", 1),
-        uncertainty_draws=_integer(args.error_draws, "--error-draws", 0),
-        bootstrap_draws=_integer(args.bootstrap, "--bootstrap", 0),
-        spread_permutations=_integer(args.spread_permutations, "--spread-permutations", 1),
-        references=refs, reference_samples=_integer(args.reference_samples, "--reference-samples", 1),
-        seed=_integer(args.seed, "--seed", 0))
+        permutations=integer_flag(args.permutations, "--permutations", 1),
+        uncertainty_draws=integer_flag(args.error_draws, "--error-draws", 0),
+        bootstrap_draws=integer_flag(args.bootstrap, "--bootstrap", 0),
+        spread_permutations=integer_flag(args.spread_permutations, "--spread-permutations", 1),
+        references=refs, reference_samples=integer_flag(args.reference_samples, "--reference-samples", 1),
+        seed=integer_flag(args.seed, "--seed", 0))
 
 
 def _labels(paths: list[str]) -> list[str]:

@@ -12,6 +12,7 @@ import math
 from pathlib import Path
 
 from .errors import InputError
+from .flags import integer_flag
 from .proportions import INTERVAL_METHODS
 from .schema import ENERGY_TOLERANCE_DEFAULT
 
@@ -80,19 +81,9 @@ def open_runs(dirs) -> list[tuple[str, object]]:
     return [(label, load_ensemble(d, flag="DIR")) for label, d in zip(_labels(dirs), dirs)]
 
 
-def _positive_int(flag, value, low=1):
-    try:
-        x = int(value)
-    except (TypeError, ValueError):
-        raise InputError(f"{flag} {value!r}: must be an integer >= {low}") from None
-    if x < low:
-        raise InputError(f"{flag} {value!r}: must be an integer >= {low}")
-    return x
-
-
 def check_common(args) -> None:
     """Check the statistics flags (seed, confidence, resamples, energy tolerance) in place."""
-    args.seed = _positive_int("--seed", args.seed, 0)
+    args.seed = integer_flag(args.seed, "--seed", 0)
     try:
         args.confidence = float(args.confidence)
     except (TypeError, ValueError):
@@ -136,7 +127,7 @@ def execute(args) -> int:
     target = target_from_args(args)
     windows = windows_from_args(args, target)
     check_common(args)
-    resamples = _positive_int("--resamples", args.resamples, 1)
+    resamples = integer_flag(args.resamples, "--resamples", 1)
     runs = open_runs(args.dirs)
     result = judge([ds for _, ds in runs], target, windows, labels=[lab for lab, _ in runs],
                    seed=args.seed, confidence=args.confidence, method=args.interval, resamples=resamples,
