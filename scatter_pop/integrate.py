@@ -1,11 +1,13 @@
 """Integrate one system through its close encounters to a classified outcome.
 
-The only module that imports REBOUND.  Flow: initial conditions -> a REBOUND
-simulation (astrocentric elements, centre-of-mass frame, ``sim.G`` set to the
-IAU value) -> integration in chunks of ``check_orbits`` initial inner orbits
-(``exact_finish_time = 0``: a chunk ends on the first step past its end time,
-so the trajectory does not depend on where chunks end) -> between chunks: the
-stopping rules, the hybrid step, the escape radius -> an outcome record.
+Together with :mod:`scatter_pop.simulation_setup` (which builds and restores
+the simulation), the only module that drives REBOUND.  Flow: initial
+conditions -> a REBOUND simulation (astrocentric elements, centre-of-mass
+frame, ``sim.G`` set to the IAU value) -> integration in chunks of
+``check_orbits`` initial inner orbits (``exact_finish_time = 0``: a chunk ends
+on the first step past its end time, so the trajectory does not depend on
+where chunks end) -> between chunks: the stopping rules, the hybrid step, the
+escape radius -> an outcome record.
 
 Hybrid integrators (TRACE, MERCURIUS) take a fixed step that must resolve the
 most demanding orbit: 2 pi sqrt(q^3 / (G M (1+e))) / ``steps_per_orbit``.  It
@@ -23,10 +25,11 @@ every step), which looks at each listed pair and decides:
   line, as REBOUND's ``"line"`` search) came within R_1 + R_2; merged by
   ``reb_collision_resolve_merge`` (mass, momentum and volume conserved; the
   lower index survives).  Until the first close encounter the planets' search
-  radii are enlarged so that every pair inside one mutual Hill radius at the
-  end of a step is listed; the end of the first such step is the
-  first-encounter time (the separation is sampled at every step end:
-  resolution one integrator step, IAS15 takes ~40-100 per inner orbit).
+  radii (:mod:`scatter_pop.search_radii`) are enlarged so that every pair
+  inside one mutual Hill radius at the end of a step is listed; the end of the
+  first such step is the first-encounter time (the separation is sampled at
+  every step end: resolution one integrator step, IAS15 takes ~40-100 per
+  inner orbit).
 * star-planet: the star's search radius makes every planet within its own
   end distance max(R* + R_p, eta r_t) listed while near pericentre; the
   two-body pericentre q of that passage decides: q < R* + R_p -> hit the star,
@@ -56,7 +59,6 @@ import json
 import math
 import os
 import time
-import warnings
 from dataclasses import asdict
 from pathlib import Path
 
@@ -64,26 +66,22 @@ import numpy as np
 import rebound
 from rebound import clibrebound
 
-from .constants import G_AU_YR_MSUN
-from .encounters import (binding_to_rest, classify_star_pass, encounter_radii, line_min_distance,
-                         merge_jump, mutual_hill_radius_now, pericentre_timescale, relative_orbit,
-                         star_contact_distance)
+from .encounters import binding_to_rest, classify_star_pass, line_min_distance, merge_jump, mutual_hill_radius_now
 from .errors import InputError
-from .initial_conditions import InitialSystem, draw_system, true_anomaly
+from .initial_conditions import InitialSystem, draw_system
 from .ledger import FateEntry, Ledger, read_checkpoint, write_checkpoint
 from .outcome import NO_PLANET, EndReason, Fate, SystemRecord
 from .record_builder import build_record, planet_index, planet_name
+from .search_radii import set_escape_radius, set_search_radii, set_star_radius
+from .simulation_setup import STAR_NAME, build_simulation, restore_simulation, simulation_blob
+from .simulation_state import astrocentric_orbit, body_size, fate_entry, hybrid_step, state_arrays
 from .stability import marchal_bozis_state_ratio, tidal_disruption_radius
 
 __all__ = ["integrate_system", "integrate_initial", "HYBRID_INTEGRATORS", "STAR_NAME"]
 
-STAR_NAME = "star"
 HYBRID_INTEGRATORS = ("trace", "mercurius")
 HYBRID_CHECK_STEPS = 2000      # hybrid step re-checked every this many steps (~2 % Python overhead)
 STEP_CHANGE = 1.25             # ... and re-chosen when the wanted step differs by more than this factor
-ENCOUNTER_MARGIN = 1.25        # search radii cover 1.25 mutual Hill radii until the first encounter
-ESCAPE_MARGIN = 1.05           # a bound planet beyond the ejection distance: escape radius 1.05 x apocentre
-MIN_DT_FRACTION = 1e-4         # IAS15 step floor: 1e-4 of the shortest contact free-fall time
 
 
 def integrate_system(spec, index: int, *, checkpoint_path=None, reference: bool = False) -> SystemRecord:
@@ -145,11 +143,7 @@ class _SystemRun:
                 raise InputError(f"checkpoint {str(self.path)!r}: written for another system or other settings "
                                  f"(system index {self.ledger.identity.get('initial', {}).get('index')!r}); "
                                  "remove it or point to the right file")
-            with warnings.catch_warnings():       # the resolve function is set again just below
-                warnings.filterwarnings("ignore", message="You have to reset function pointers")
-                self.sim = rebound.Simulation(blob)
-            for particle, name in zip(self.sim.particles, self.ledger.bodies):
-                particle.name = name                # names are not trusted after a reload (ledger.bodies)
+            self.sim = restore_simulation(blob, self.ledger.bodies)   # names re-set from the ledger
         else:
             self.ledger = Ledger(identity=self.identity)
             self.sim = self._build()
@@ -157,36 +151,15 @@ class _SystemRun:
 
     # ------------------------------------------------------------------ set-up
     def _build(self):
-        ini, integ = self.initial, self.integ
-        sim = rebound.Simulation()
-        sim.G = G_AU_YR_MSUN
-        sim.add(m=ini.star_mass, r=ini.star_radius, name=STAR_NAME)
+        ini = self.initial
+        names = [planet_name(i) for i in range(ini.count)]
+        sim = build_simulation(ini, self.integ, names)
         self.ledger.radius[STAR_NAME] = ini.star_radius
         for i in range(ini.count):
-            sim.add(primary=sim.particles[0], m=ini.mass[i], r=ini.radius[i], a=ini.a[i], e=ini.e[i],
-                    inc=ini.inc[i], omega=ini.omega[i], Omega=ini.node[i],
-                    f=true_anomaly(ini.mean_anomaly[i], ini.e[i]), name=planet_name(i))
-            self.ledger.radius[planet_name(i)] = ini.radius[i]
-        self.ledger.bodies = [STAR_NAME] + [planet_name(i) for i in range(ini.count)]
-        sim.move_to_com()
-        if not all(math.isfinite(c) for k in range(sim.N) for c in (*sim.particles[k].xyz, *sim.particles[k].vxyz)):
-            raise InputError(f"initial system {ini.index}: the elements give no finite position "
-                             f"(a = {ini.a}, e = {ini.e})")
-        sim.rand_seed = int(ini.seed) % 2**32        # orders simultaneous contacts; saved with the state
-        sim.integrator = integ.integrator
-        if integ.integrator == "ias15":
-            sim.integrator.epsilon = integ.epsilon
-            sim.integrator.min_dt = MIN_DT_FRACTION * self._contact_time()
-        elif integ.integrator == "bs":
-            sim.integrator.eps_abs = integ.bs_epsilon
-            sim.integrator.eps_rel = integ.bs_epsilon
-        else:
-            sim.integrator.r_crit_hill = integ.r_crit_hill
-        sim.collision = "direct" if integ.integrator == "mercurius" else "line"
-        sim.track_energy_offset = 0                  # every jump is booked in the ledger instead
-        sim.exit_max_distance = integ.ejection_distance
+            self.ledger.radius[names[i]] = ini.radius[i]
+        self.ledger.bodies = [STAR_NAME] + names
         self.sim = sim
-        sim.dt = self._step_size() if integ.integrator in HYBRID_INTEGRATORS else self.p_in / 100.0
+        sim.dt = self._step_size() if self.integ.integrator in HYBRID_INTEGRATORS else self.p_in / 100.0
         self.ledger.e0 = sim.energy()
         self.ledger.l0 = list(sim.angular_momentum())
         self.ledger.l_scale = sum(sim.particles[k].m * float(np.linalg.norm(np.cross(sim.particles[k].xyz,
@@ -194,86 +167,25 @@ class _SystemRun:
         self._set_search_radii()
         return sim
 
-    def _contact_time(self) -> float:
-        """Shortest free-fall time at contact (yr): star surface or two touching planets."""
-        ini = self.initial
-        g = G_AU_YR_MSUN
-        times = [math.sqrt((ini.star_radius + r) ** 3 / (g * (ini.star_mass + m))) for m, r in zip(ini.mass, ini.radius)]
-        for i in range(ini.count):
-            for j in range(i + 1, ini.count):
-                d = ini.radius[i] + ini.radius[j]
-                times.append(math.sqrt(d**3 / (g * (ini.mass[i] + ini.mass[j]))))
-        return min(times)
-
     # ------------------------------------------------------------------ state helpers
     def _arrays(self):
-        ps = self.sim.particles
-        n = self.sim.N
-        m = np.array([ps[i].m for i in range(n)])
-        x = np.array([ps[i].xyz for i in range(n)])
-        v = np.array([ps[i].vxyz for i in range(n)])
-        return m, x, v
-
-    def _astro(self, k: int):
-        """(a, e, q) of particle k about the star, from relative coordinates (any frame)."""
-        ps = self.sim.particles
-        dx = np.subtract(ps[k].xyz, ps[0].xyz)
-        dv = np.subtract(ps[k].vxyz, ps[0].vxyz)
-        return relative_orbit(dx, dv, self.sim.G * (ps[0].m + ps[k].m))
+        return state_arrays(self.sim)
 
     def _name(self, k: int) -> str:
         """Name of the body at simulation index k (the engine's own list, see Ledger.bodies)."""
         return self.ledger.bodies[k]
 
-    def _size(self, k: int) -> float:
-        a, _, _ = self._astro(k)
-        if 0.0 < a < math.inf:
-            return a
-        ps = self.sim.particles
-        return float(np.linalg.norm(np.subtract(ps[k].xyz, ps[0].xyz)))
-
-    def _end_distance(self, k: int) -> float:
-        ps = self.sim.particles
-        return star_contact_distance(ps[0].m, self.initial.star_radius, ps[k].m,
-                                     self.ledger.radius[self._name(k)], self.out.disruption_eta)
-
     def _set_star_radius(self, exclude: int | None = None) -> None:
-        """Star search radius: every planet is listed once within its end distance."""
-        ps = self.sim.particles
-        need = [self._end_distance(k) - ps[k].r for k in range(1, self.sim.N) if k != exclude]
-        ps[0].r = max([0.0, *need]) if need else self.initial.star_radius
+        set_star_radius(self.sim, self.ledger, self.initial.star_radius, self.out.disruption_eta, exclude)
 
     def _set_search_radii(self) -> None:
-        """Planet search radii (Hill-scale before the first encounter, physical after) and the star's."""
-        ps, n = self.sim.particles, self.sim.N
-        if self.ledger.encounter_found or n < 3:
-            for k in range(1, n):
-                ps[k].r = self.ledger.radius[self._name(k)]
-        else:
-            radii = encounter_radii(ps[0].m, [ps[k].m for k in range(1, n)],
-                                    [self._size(k) for k in range(1, n)], ENCOUNTER_MARGIN)
-            for k in range(1, n):
-                ps[k].r = max(radii[k - 1], self.ledger.radius[self._name(k)])
-        self._set_star_radius()
+        set_search_radii(self.sim, self.ledger, self.initial.star_radius, self.out.disruption_eta)
 
     def _step_size(self) -> float:
-        """Hybrid step: shortest current orbital time scale (pericentre-resolved) / steps_per_orbit."""
-        ps = self.sim.particles
-        scales = []
-        for k in range(1, self.sim.N):
-            a, e, _ = self._astro(k)
-            if 0.0 < a < math.inf and e < 1.0:
-                scales.append(pericentre_timescale(self.sim.G * (ps[0].m + ps[k].m), a, e))
-        base = min(scales) if scales else self.p_in
-        return base / self.integ.steps_per_orbit
+        return hybrid_step(self.sim, self.integ.steps_per_orbit, self.p_in)
 
     def _fate_entry(self, k: int, fate: Fate, merged_into: int = NO_PLANET) -> FateEntry:
-        ps = self.sim.particles
-        orbit = ps[k].orbit(primary=ps[0])
-        _, _, q = self._astro(k)
-        return FateEntry(fate=int(fate), t=float(self.sim.t), merged_into=int(merged_into), mass=float(ps[k].m),
-                         a=float(orbit.a), e=float(orbit.e), inc=float(orbit.inc), omega=float(orbit.omega),
-                         node=float(orbit.Omega), q=float(q), radius=float(self.ledger.radius[self._name(k)]))
+        return fate_entry(self.sim, k, fate, self.ledger.radius[self._name(k)], merged_into)
 
     # ------------------------------------------------------------------ contacts (inside a step)
     def _resolve(self, sim_pointer, collision):
@@ -296,7 +208,8 @@ class _SystemRun:
         else:
             d_min = line_min_distance(dx, dv, self.sim.dt_last_done)
         if not self.ledger.encounter_found:        # sampled at step ends (no extrapolation)
-            r_hill = mutual_hill_radius_now(ps[0].m, ps[i].m, ps[j].m, self._size(i), self._size(j))
+            r_hill = mutual_hill_radius_now(ps[0].m, ps[i].m, ps[j].m, body_size(self.sim, i),
+                                            body_size(self.sim, j))
             if float(np.linalg.norm(dx)) < r_hill:
                 self.ledger.t_first_encounter = float(self.sim.t)
                 self._set_search_radii()
@@ -325,7 +238,7 @@ class _SystemRun:
 
     def _star_pass(self, sim_pointer, collision, k: int) -> int:
         ps = self.sim.particles
-        _, _, q = self._astro(k)
+        _, _, q = astrocentric_orbit(self.sim, k)
         kind = classify_star_pass(q, ps[0].m, self.initial.star_radius, ps[k].m,
                                   self.ledger.radius[self._name(k)], self.out.disruption_eta)
         if kind is None:
@@ -375,19 +288,7 @@ class _SystemRun:
             self.ledger.book(sim.energy() - e_before, np.array(sim.angular_momentum()) - l_before)
             self._set_star_radius()
             self.events = True
-        self._set_escape_radius()
-
-    def _set_escape_radius(self) -> None:
-        """Ejection distance, or above the apocentre of a bound planet currently beyond it."""
-        sim, limit = self.sim, self.integ.ejection_distance
-        m, x, v = self._arrays()
-        radius = limit
-        for k in range(1, sim.N):
-            dist = float(np.linalg.norm(x[k]))
-            if dist > limit:
-                _, apo = binding_to_rest(m, x, v, k, sim.G)
-                radius = max(radius, ESCAPE_MARGIN * max(apo, dist))
-        sim.exit_max_distance = radius
+        set_escape_radius(sim, limit)
 
     # ------------------------------------------------------------------ the run
     def _finished(self, leaving: int = 0) -> bool:
@@ -464,7 +365,7 @@ class _SystemRun:
         self.ledger.wall_seconds = spent_before + time.perf_counter() - start
         if reason == EndReason.CAPPED:
             if self.path is not None:
-                write_checkpoint(self.path, self.ledger, self.sim.__reduce__()[1][0])
+                write_checkpoint(self.path, self.ledger, simulation_blob(self.sim))
         elif self.path is not None and self.path.exists():
             os.remove(self.path)
         return self._record(reason)
