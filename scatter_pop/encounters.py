@@ -18,7 +18,7 @@ import numpy as np
 from .stability import tidal_disruption_radius
 
 __all__ = [
-    "relative_orbit", "line_min_distance", "merge_jump", "binding_to_rest",
+    "relative_orbit", "line_min_distance", "merge_jump", "binding_to_interior",
     "star_contact_distance", "classify_star_pass", "pericentre_timescale",
     "encounter_radii", "mutual_hill_radius_now",
 ]
@@ -126,8 +126,13 @@ def merge_jump(m, x, v, i, j, G):
     return float(de), dl
 
 
-def binding_to_rest(m, x, v, k, G):
-    """Two-body orbit of body k about the centre of mass of all other bodies.
+def binding_to_interior(m, x, v, k, G):
+    """Two-body orbit of planet k about the star and every body closer to the star than k.
+
+    Body 0 is the star.  The reference point is the centre of mass of the star and of the bodies whose
+    distance from the star is smaller than k's (Jacobi-style hierarchy, common practice for judging
+    escape in hierarchical systems): a bound inner planet stays bound however far a wide companion
+    pulls the system's centre of mass, and a distant planet is judged against all the mass inside it.
 
     Returns
     -------
@@ -137,13 +142,15 @@ def binding_to_rest(m, x, v, k, G):
         Apocentre distance (AU); inf when unbound.
     """
     m, x, v = np.asarray(m, dtype=float), np.asarray(x, dtype=float), np.asarray(v, dtype=float)
-    rest = np.ones(len(m), dtype=bool)
-    rest[k] = False
-    m_rest = m[rest].sum()
-    x_rest = (m[rest, None] * x[rest]).sum(axis=0) / m_rest
-    v_rest = (m[rest, None] * v[rest]).sum(axis=0) / m_rest
-    gm = G * (m_rest + m[k])
-    dx, dv = x[k] - x_rest, v[k] - v_rest
+    dist = np.linalg.norm(x - x[0], axis=1)
+    inner = dist < dist[k]
+    inner[0] = True
+    inner[k] = False
+    m_in = m[inner].sum()
+    x_in = (m[inner, None] * x[inner]).sum(axis=0) / m_in
+    v_in = (m[inner, None] * v[inner]).sum(axis=0) / m_in
+    gm = G * (m_in + m[k])
+    dx, dv = x[k] - x_in, v[k] - v_in
     energy = 0.5 * float(dv @ dv) - gm / float(np.linalg.norm(dx))
     if energy >= 0.0:
         return energy, math.inf

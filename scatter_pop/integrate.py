@@ -35,11 +35,12 @@ every step), which looks at each listed pair and decides:
   two-body pericentre q of that passage decides: q < R* + R_p -> hit the star,
   q < eta R_p (M*/M_p)^(1/3) -> tidally disrupted (merged into the star), else
   nothing.  A single passage inside the limit is caught.
-* ejection: ``exit_max_distance`` = the ejection distance (from the centre of
-  mass: ``move_to_com`` after every removal); when REBOUND raises ``Escape`` a
-  planet beyond it that is unbound from the rest of the system is removed; a
-  bound one is kept and the escape radius raised above its apocentre until it
-  returns inside the ejection distance.
+* ejection: REBOUND raises ``Escape`` once a planet is farther from the star
+  than the ejection distance (``search_radii.set_escape_radius``); such a
+  planet is removed when it is unbound from the star and the bodies closer to
+  the star than it (``encounters.binding_to_interior``); a bound one is kept
+  and the escape radius raised above its apocentre until it returns inside
+  the ejection distance.  ``move_to_com`` after every removal.
 
 Every merger and removal is booked by hand in the ledger (exact energy and
 angular-momentum jumps including third-body potentials), because REBOUND's own
@@ -66,7 +67,7 @@ import numpy as np
 import rebound
 from rebound import clibrebound
 
-from .encounters import binding_to_rest, classify_star_pass, line_min_distance, merge_jump, mutual_hill_radius_now
+from .encounters import binding_to_interior, classify_star_pass, line_min_distance, merge_jump, mutual_hill_radius_now
 from .errors import InputError
 from .initial_conditions import InitialSystem, draw_system
 from .ledger import FateEntry, Ledger, read_checkpoint, write_checkpoint
@@ -275,8 +276,8 @@ class _SystemRun:
         sim, limit = self.sim, self.integ.ejection_distance
         while True:
             m, x, v = self._arrays()
-            far = [k for k in range(1, sim.N) if float(np.linalg.norm(x[k])) > limit]
-            unbound = [k for k in far if binding_to_rest(m, x, v, k, sim.G)[0] >= 0.0]
+            far = [k for k in range(1, sim.N) if float(np.linalg.norm(x[k] - x[0])) > limit]
+            unbound = [k for k in far if binding_to_interior(m, x, v, k, sim.G)[0] >= 0.0]
             if not unbound:
                 break
             k = unbound[0]

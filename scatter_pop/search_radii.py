@@ -12,16 +12,19 @@ beyond ``exit_max_distance``.
   left.
 * Star: large enough that every planet is listed within its own end distance
   max(R* + R_p, eta r_t) (a planet's search radius counts towards it).
-* Escape radius: the ejection distance, or ``ESCAPE_MARGIN`` times the
-  apocentre (about the barycentre of the other bodies) of a bound planet that
-  is currently beyond it, until that planet is back inside.
+* Escape radius: distances are judged from the star.  The ejection distance,
+  or ``ESCAPE_MARGIN`` times the apocentre (about the star and the bodies inside
+  it) of a bound planet that is currently beyond it, until that planet is back
+  inside; REBOUND measures from the centre of mass, so the star's offset from
+  it is added (every planet beyond the radius from the star is then reported,
+  none inside it).
 """
 
 from __future__ import annotations
 
 import numpy as np
 
-from .encounters import binding_to_rest, encounter_radii, star_contact_distance
+from .encounters import binding_to_interior, encounter_radii, star_contact_distance
 from .simulation_state import body_size, state_arrays
 
 __all__ = ["set_search_radii", "set_star_radius", "set_escape_radius", "ENCOUNTER_MARGIN", "ESCAPE_MARGIN"]
@@ -56,12 +59,12 @@ def set_search_radii(sim, ledger, star_radius: float, eta: float) -> None:
 
 
 def set_escape_radius(sim, ejection_distance: float) -> None:
-    """Escape radius: the ejection distance, or above the apocentre of a bound planet currently beyond it."""
+    """Escape radius: the ejection distance from the star, or above the apocentre of a bound planet beyond it."""
     m, x, v = state_arrays(sim)
     radius = ejection_distance
     for k in range(1, sim.N):
-        dist = float(np.linalg.norm(x[k]))
+        dist = float(np.linalg.norm(x[k] - x[0]))
         if dist > ejection_distance:
-            _, apo = binding_to_rest(m, x, v, k, sim.G)
+            _, apo = binding_to_interior(m, x, v, k, sim.G)
             radius = max(radius, ESCAPE_MARGIN * max(apo, dist))
-    sim.exit_max_distance = radius
+    sim.exit_max_distance = radius + float(np.linalg.norm(x[0]))

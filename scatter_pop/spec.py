@@ -97,7 +97,7 @@ class IntegrationSpec:
     bs_epsilon: float = 1e-10              # BS tolerance (integrator bs)
     steps_per_orbit: float = 50.0          # hybrid step = current shortest period / this
     r_crit_hill: float = 3.0               # hybrid switching radius, in Hill radii
-    ejection_distance: float = 1000.0      # AU from the centre of mass
+    ejection_distance: float = 1000.0      # AU from the star
     wall_seconds_max: float = 7200.0       # per system
     check_orbits: float = 100.0            # initial inner orbits between stopping checks
     stop_when_settled: bool = True         # False: reference mode, run to the end time

@@ -168,10 +168,6 @@ def test_survivor_a_follows_from_the_ejected_planets_excess_energy(ejection):
     assert abs(parabolic / a_f - 1) > tolerance
 
 
-@pytest.mark.xfail(strict=True, reason="engine bug: the ejection test measures distance from the system's "
-                   "centre of mass and binding to the barycentre of all other bodies, so a distant bound "
-                   "companion that displaces the star by more than the ejection distance gets an inner, "
-                   "bound planet removed as 'ejected'")
 def test_bound_inner_planet_is_not_ejected_when_a_wide_companion_displaces_the_star():
     # Hierarchical state after a scattering: a 5 M_J planet at 1 AU (circular) and another 5 M_J
     # planet on a wide bound orbit (a = 8000 AU, e = 0.5) at apocentre, r = 12000 AU.  The centre of

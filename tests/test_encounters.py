@@ -84,14 +84,41 @@ def test_merge_jump_equals_brute_force_difference(seed, boost):
     np.testing.assert_allclose(dl2, dl, rtol=1e-9, atol=1e-14)
 
 
-def test_binding_to_rest_separates_bound_and_unbound():
+def test_binding_to_interior_separates_bound_and_unbound():
+    # Two-body escape speed v_esc = sqrt(2 G (M + m) / r) (textbook two-body problem, e.g. Murray &
+    # Dermott 1999, Solar System Dynamics, ch. 2 -- from memory): 1 % above it is unbound, below bound.
     m = np.array([1.0, 1e-3])
     x = np.array([[0.0, 0, 0], [100.0, 0, 0]])
     v_esc = math.sqrt(2 * G_AU_YR_MSUN * (1 + 1e-3) / 100.0)
-    e_plus, apo_plus = enc.binding_to_rest(m, x, np.array([[0.0, 0, 0], [0, 1.01 * v_esc, 0]]), 1, G_AU_YR_MSUN)
-    e_minus, apo_minus = enc.binding_to_rest(m, x, np.array([[0.0, 0, 0], [0, 0.99 * v_esc, 0]]), 1, G_AU_YR_MSUN)
+    e_plus, apo_plus = enc.binding_to_interior(m, x, np.array([[0.0, 0, 0], [0, 1.01 * v_esc, 0]]), 1, G_AU_YR_MSUN)
+    e_minus, apo_minus = enc.binding_to_interior(m, x, np.array([[0.0, 0, 0], [0, 0.99 * v_esc, 0]]), 1, G_AU_YR_MSUN)
     assert e_plus > 0 and math.isinf(apo_plus)
     assert e_minus < 0 and apo_minus > 100.0
+
+
+def test_binding_to_interior_ignores_outer_bodies_and_counts_inner_ones():
+    # A bound planet on a circular 1 AU orbit and a 5 M_J companion 12 000 AU out, which pulls the
+    # system's centre of mass ~57 AU from the star.  About the barycentre of "everything else" the
+    # inner planet would look unbound (it moves with the star at ~v_star relative to a point 57 AU
+    # away); about the star and the bodies inside it, it has the circular energy -G(M+m)/(2a)
+    # (two-body problem, common practice).
+    mj = 5 * MJUP_MSUN
+    m = np.array([1.0, mj, mj])
+    v_circ = math.sqrt(G_AU_YR_MSUN * (1.0 + mj) / 1.0)
+    x = np.array([[0.0, 0, 0], [1.0, 0, 0], [-12000.0, 0, 0]])
+    v = np.array([[0.0, 0, 0], [0, v_circ, 0], [0, 0.0, 0]])
+    energy, apo = enc.binding_to_interior(m, x, v, 1, G_AU_YR_MSUN)
+    assert energy == pytest.approx(-G_AU_YR_MSUN * (1.0 + mj) / 2.0, rel=1e-12)
+    assert apo == pytest.approx(1.0, rel=1e-9)
+    # the outer body is judged against the star *and* the inner planet: at rest 12 000 AU out it is
+    # bound, with apocentre its present distance from their centre of mass
+    energy_out, apo_out = enc.binding_to_interior(m, x, v, 2, G_AU_YR_MSUN)
+    com_inner = (1.0 * x[0] + mj * x[1]) / (1.0 + mj)
+    v_com = (mj * v[1]) / (1.0 + mj)
+    d = np.linalg.norm(x[2] - com_inner)
+    expected = 0.5 * float(v_com @ v_com) - G_AU_YR_MSUN * (1.0 + 2 * mj) / d
+    assert energy_out == pytest.approx(expected, rel=1e-12)
+    assert apo_out == pytest.approx(d, rel=1e-6)
 
 
 def test_star_pass_classification_order():

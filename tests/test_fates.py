@@ -127,7 +127,12 @@ def test_bound_wanderer_returns_and_escape_radius_is_reset():
                          OutcomeSpec(), None, True)
     rec = sim_run.run()
     assert rec.planets[1].fate == Fate.SURVIVED
-    assert sim_run.sim.exit_max_distance == 100.0          # back inside: rule restored
+    # back inside: rule restored -- the ejection distance from the star, i.e. from the origin (the
+    # centre of mass) plus the star's offset from it
+    star = sim_run.sim.particles[0]
+    offset = math.sqrt(star.x ** 2 + star.y ** 2 + star.z ** 2)
+    assert 0.0 < offset < 0.2
+    assert sim_run.sim.exit_max_distance == pytest.approx(100.0 + offset, rel=1e-12)
 
 
 # --------------------------------------------------------------------------- star
