@@ -15,7 +15,11 @@ adds what a long run on an allocation needs:
   is replaced (``scale`` would not replace it); ``minimum_jobs``/``maximum_jobs`` adapt to load;
 * a refused submission (bad partition, account, ...) raises :class:`InputError` at once instead
   of leaving the run waiting for workers that never come;
-* SIGTERM to the driver unwinds the ``with`` block, so the worker jobs are cancelled.
+* SIGTERM to the driver unwinds the ``with`` block, so the worker jobs are cancelled.  Start-up,
+  clean-up and any caller's :func:`deferred_sigterm` block only record it; :func:`check_terminated`
+  raises it between whole steps (never inside a lock).  After it, Dask's log lines and tracebacks,
+  local workers' included, stay off the user's terminal; a clean-up that takes over
+  ``TERM_GRACE_SECONDS`` ends the process.
 """
 
 from __future__ import annotations
@@ -38,7 +42,8 @@ if TYPE_CHECKING:
     import distributed
 
 __all__ = ["ClusterConfig", "KINDS", "ALLOWED_FAILURES", "WalltimeWarning", "load_cluster_file",
-           "apply_overrides", "connect", "job_script", "configure_dask", "check_walltime"]
+           "apply_overrides", "connect", "job_script", "configure_dask", "check_walltime",
+           "deferred_sigterm", "check_terminated"]
 
 ALLOWED_FAILURES = 5       # worker deaths a task may witness before it is declared failed
 JOB_NAME = "scatter-pop"   # name of the worker jobs in squeue / qstat
@@ -138,12 +143,88 @@ def _wait_for_submission(cluster, kind: str) -> None:
                              "job script)")
         if any(getattr(job, "job_id", None) for job in cluster.workers.values()):
             return
+        check_terminated()
         time.sleep(0.1)
     warnings.warn(f"no worker job submitted by {command} within {SUBMIT_WAIT_SECONDS:.0f} s; "
                   "continuing to wait for workers", RuntimeWarning, stacklevel=3)
 
 
 TERM_GRACE_SECONDS = 20.0   # clean-up time after SIGTERM before the process ends itself
+
+
+class _Activation:
+    """One connect()'s SIGTERM handling: the signal received (if any), and the grace watchdog."""
+
+    def __init__(self) -> None:
+        self.signum: int | None = None   # the first SIGTERM
+        self.raised = False              # its SystemExit has been raised
+        self.wake = threading.Event()    # wakes the watchdog: SIGTERM, or leaving without one
+
+
+_CURRENT: _Activation | None = None    # the active handling (main thread's connect())
+_DEFER = 0                             # depth of deferred_sigterm() blocks in the main thread
+
+
+def _quiet_process() -> None:
+    """After SIGTERM the process is going away: what Dask, its threads and objects being torn down
+    would report from now on (log records, exceptions in threads, exceptions in ``__del__``,
+    warnings) is not for the user, who gets one line; the clean-up itself still runs."""
+    import logging
+    logging.disable(logging.CRITICAL)
+    threading.excepthook = lambda args: None
+    sys.unraisablehook = lambda unraisable: None
+    warnings.simplefilter("ignore")
+
+
+def _terminate(act: _Activation) -> SystemExit:
+    act.raised = True
+    _quiet_process()
+    return SystemExit(128 + act.signum)
+
+
+def _on_sigterm(signum, frame) -> None:
+    # Only the first SIGTERM counts: a second one must not break the clean-up half-way.
+    # Nothing here takes a lock the main thread could hold (Event.set takes the event's own
+    # condition, which only the watchdog thread waits on).
+    act = _CURRENT
+    if act is None or act.signum is not None:
+        return
+    act.signum = signum
+    act.wake.set()
+    if _DEFER == 0:
+        raise _terminate(act)
+
+
+def check_terminated() -> None:
+    """Raise ``SystemExit(143)`` if a SIGTERM arrived inside :func:`deferred_sigterm` and has not been
+    raised yet; a no-op otherwise.  Call it where unwinding is safe (between whole operations)."""
+    act = _CURRENT
+    if act is not None and act.signum is not None and not act.raised:
+        raise _terminate(act)
+
+
+@contextmanager
+def deferred_sigterm() -> Iterator[None]:
+    """Inside, a SIGTERM to the driver is only recorded; it is raised as ``SystemExit(143)`` by the
+    next :func:`check_terminated` or on leaving the block.
+
+    An exception raised by a signal handler lands wherever the main thread happens to be: between
+    taking a lock and entering the ``try`` that releases it (xarray's HDF5 lock while a part file is
+    written: the clean-up then waits for that lock forever), or inside a garbage-collector callback,
+    which swallows it (the SIGTERM is lost).  Code that holds such resources runs in this block and
+    calls :func:`check_terminated` only between whole operations.  Only the main thread defers
+    (signal handlers run there); elsewhere the block does nothing.
+    """
+    global _DEFER
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    _DEFER += 1
+    try:
+        yield
+    finally:
+        _DEFER -= 1
+    check_terminated()
 
 
 def _hard_exit(status: int) -> None:
@@ -157,30 +238,66 @@ def _hard_exit(status: int) -> None:
     os._exit(status)
 
 
+def _grace_watchdog(act: _Activation) -> None:
+    act.wake.wait()
+    if act.signum is None:            # connect() was left without a SIGTERM
+        return
+    # If the clean-up hangs (a batch system that does not answer, a worker that does not stop),
+    # end the process: every finished part is already on disk, so a rerun resumes; local worker
+    # processes are killed first, batch jobs end when their workers lose the scheduler.
+    time.sleep(TERM_GRACE_SECONDS)
+    _hard_exit(128 + act.signum)
+
+
 @contextmanager
 def _sigterm_unwinds() -> Iterator[None]:
-    """While inside, SIGTERM raises SystemExit(143) in the main thread, so ``finally`` runs."""
-    if threading.current_thread() is not threading.main_thread():
-        yield
+    """While inside, SIGTERM raises SystemExit(143) in the main thread (at once, or at the next
+    :func:`check_terminated` inside :func:`deferred_sigterm`), so ``finally`` blocks run."""
+    global _CURRENT
+    if threading.current_thread() is not threading.main_thread() or _CURRENT is not None:
+        yield                             # not the main thread, or an outer connect() handles it
         return
-
-    def handler(signum, frame):
-        # Unwind once; a second SIGTERM must not break the clean-up half-way. If the clean-up
-        # hangs (a worker busy inside a long C integration step, an event loop interrupted at a
-        # bad moment), end the process after a grace period: every finished part is already on
-        # disk, so a rerun resumes; local worker processes are killed first, batch jobs end when
-        # their workers lose the scheduler.
-        signal.signal(signal.SIGTERM, signal.SIG_IGN)
-        timer = threading.Timer(TERM_GRACE_SECONDS, _hard_exit, args=(128 + signum,))
-        timer.daemon = True
-        timer.start()
-        raise SystemExit(128 + signum)
-
-    previous = signal.signal(signal.SIGTERM, handler)
+    act = _Activation()
+    threading.Thread(target=_grace_watchdog, args=(act,), name="scatter-pop SIGTERM grace",
+                     daemon=True).start()
+    _CURRENT = act
+    previous = signal.signal(signal.SIGTERM, _on_sigterm)
     try:
         yield
     finally:
         signal.signal(signal.SIGTERM, previous)
+        _CURRENT = None
+        if act.signum is None:
+            act.wake.set()                # ends the watchdog
+    if act.signum is not None and not act.raised:   # recorded in a deferred block just left
+        raise _terminate(act)
+
+
+def _silence_stderr() -> None:
+    """Runs on each local worker after SIGTERM: its stderr (the user's terminal, inherited from the
+    driver) goes to /dev/null, so the warnings and tracebacks of a worker closing in the middle of
+    a task do not reach the user."""
+    fd = os.open(os.devnull, os.O_WRONLY)
+    os.dup2(fd, 2)
+    os.close(fd)
+
+
+def _close(client, cluster, kind: str) -> None:
+    """Close the client, then the cluster (which closes its workers, or cancels its jobs)."""
+    act = _CURRENT
+    terminating = act is not None and act.signum is not None
+    try:
+        if client is not None:
+            if terminating and kind == "local":
+                try:
+                    client.run(_silence_stderr, on_error="ignore")
+                except (OSError, RuntimeError):   # scheduler already gone: nothing left to quiet
+                    pass
+            client.close()
+    finally:
+        if cluster is not None:
+            _SUBMIT_ERRORS.pop(cluster.scheduler_address, None)
+            cluster.close()
 
 
 def _start_cluster(c: ClusterConfig):
@@ -251,26 +368,20 @@ def connect(config: ClusterConfig, *, workers: int | None = None, scheduler: str
     if config.kind in BATCH:
         check_walltime(config.walltime, longest_task_seconds)
     configure_dask()
-    if config.kind == "address":
-        client = _client_for_address(config.address)
-        try:
-            _warn_scheduler_settings(client)
-            with _sigterm_unwinds():
-                yield client
-        finally:
-            client.close()
-        return
     from distributed import Client
     with _sigterm_unwinds():
-        cluster = _start_cluster(config)
+        cluster = client = None
         try:
-            client = Client(cluster)
-            try:
-                if config.kind in BATCH:
-                    _wait_for_submission(cluster, config.kind)
-                yield client
-            finally:
-                client.close()
+            with deferred_sigterm():       # starting up is not interrupted half-way
+                if config.kind == "address":
+                    client = _client_for_address(config.address)
+                    _warn_scheduler_settings(client)
+                else:
+                    cluster = _start_cluster(config)
+                    client = Client(cluster)
+                    if config.kind in BATCH:
+                        _wait_for_submission(cluster, config.kind)
+            yield client
         finally:
-            _SUBMIT_ERRORS.pop(cluster.scheduler_address, None)
-            cluster.close()
+            with deferred_sigterm():       # nor is the clean-up
+                _close(client, cluster, config.kind)

@@ -55,6 +55,7 @@ __all__ = ["run_ensemble", "EnsembleRun", "integrate_batch", "failed_record", "d
 
 FAULT_ENV = "SCATTER_POP_TEST_KILL_SYSTEMS"
 WORKER_POLL_SECONDS = 5.0          # how often the driver re-reads the number of workers
+FINISHED_POLL_SECONDS = 0.05       # how often the driver looks for finished tasks (and for SIGTERM)
 
 
 def default_out(spec: EnsembleSpec) -> Path:
@@ -202,13 +203,15 @@ class EnsembleRun:
         if self.client is not None:
             self._drive(self.client, plan)
             return
-        from .cluster import connect
+        from .cluster import connect, deferred_sigterm
         config = self.cluster if self.cluster is not None else self.spec.cluster
         widest = max([plan.batch_size, 1] + [len(t.indices) for t in plan.redo])
         longest = self.spec.integration.wall_seconds_max * widest
         t0 = time.monotonic()
+        # SIGTERM is acted upon only between whole steps of the driver (see _finished), never in
+        # the middle of writing a part file
         with connect(config, workers=self.workers, scheduler=self.scheduler,
-                     longest_task_seconds=longest) as client:
+                     longest_task_seconds=longest) as client, deferred_sigterm():
             self.timings.connect = time.monotonic() - t0
             self._drive(client, plan)
 
@@ -250,7 +253,7 @@ class EnsembleRun:
                 done_iter.add(fut)
 
         refill()
-        for fut in done_iter:
+        for fut in _finished(done_iter):
             if fut.status in ("lost", "pending"):
                 # its result was on a worker that died before we fetched it: the scheduler
                 # computes it again; wait for it again
@@ -309,6 +312,24 @@ class EnsembleRun:
         for r in records:       # a failed system keeps its checkpoint: --retry-failed continues it
             if r.end_reason not in (EndReason.CAPPED, EndReason.FAILED):
                 plan.folder.checkpoint_path(r.index).unlink(missing_ok=True)
+
+
+def _finished(done_iter):
+    """The futures of ``done_iter`` (``distributed.as_completed``) as they finish.
+
+    Waits by polling rather than blocking in ``as_completed``, so that a SIGTERM received by
+    :func:`scatter_pop.cluster.connect` (deferred while the driver writes parts) is raised here,
+    between two results, within ``FINISHED_POLL_SECONDS``.
+    """
+    from .cluster import check_terminated
+    while True:
+        check_terminated()
+        if done_iter.has_ready():
+            yield next(done_iter)
+        elif done_iter.is_empty():
+            return
+        else:
+            time.sleep(FINISHED_POLL_SECONDS)
 
 
 def run_ensemble(spec_or_path, out=None, client=None, **options) -> xr.Dataset:
