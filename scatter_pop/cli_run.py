@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-import sys
-
 from .errors import InputError
 from .spec import load_spec
 
@@ -37,7 +35,7 @@ def configure(parser) -> None:
 
 
 def execute(args) -> int:
-    from .cluster import apply_overrides, load_cluster_file
+    from .cluster import apply_overrides, load_cluster_file, stop_signals
     from .ensemble import EnsembleRun, default_out
 
     spec = load_spec(args.spec)
@@ -63,12 +61,10 @@ def execute(args) -> int:
             "one worker per core" if resolved.kind == "local" else f"{resolved.kind} jobs")
         print(f"cluster: {resolved.kind} ({where}); nothing was computed (--dry-run)")
         return 0
-    try:
+    # SIGTERM (preemption, scancel) and SIGINT (Ctrl-C) stop the run at a safe point with one line
+    # on stderr and exit status 143 / 130 (SystemExit); a second Ctrl-C does not wait for the clean-up
+    with stop_signals("scatter-pop run"):
         ds = run.run()
-    except SystemExit:          # SIGTERM (preemption, scancel): the cluster module unwinds with this
-        print("scatter-pop run: terminated; finished parts are kept, rerun the same command to resume",
-              file=sys.stderr)
-        raise
     reasons = ds["end_reason"]
     words = ", ".join(f"{w} {int((reasons.values == v).sum())}"
                       for v, w in zip(reasons.attrs["flag_values"], reasons.attrs["flag_meanings"].split())

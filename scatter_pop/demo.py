@@ -185,12 +185,16 @@ def main(argv=None) -> int:
     parser.add_argument("--workers", type=int, help="local Dask workers (default: one per core)")
     parser.add_argument("--format", default="pdf,png", help="figure formats (default pdf,png)")
     args = parser.parse_args(argv)
+    from .cluster import stop_signals
     try:
         if args.workers is not None and args.workers < 1:
             raise InputError(f"--workers {args.workers}: must be >= 1")
         formats = tuple(f.strip() for f in args.format.split(",") if f.strip())
-        run_demo(args.spec, args.out, target_path=args.target, observed=args.observed, workers=args.workers,
-                 formats=formats)
+        # Ctrl-C and SIGTERM end the demo as they end `scatter-pop run`: at a safe point of the run
+        # phase, one line, exit status 130 / 143; a second Ctrl-C does not wait for the clean-up
+        with stop_signals("demo"):
+            run_demo(args.spec, args.out, target_path=args.target, observed=args.observed,
+                     workers=args.workers, formats=formats)
     except InputError as exc:
         print(f"demo: error: {exc}", file=sys.stderr)
         return 2

@@ -55,7 +55,7 @@ __all__ = ["run_ensemble", "EnsembleRun", "integrate_batch", "failed_record", "d
 
 FAULT_ENV = "SCATTER_POP_TEST_KILL_SYSTEMS"
 WORKER_POLL_SECONDS = 5.0          # how often the driver re-reads the number of workers
-FINISHED_POLL_SECONDS = 0.05       # how often the driver looks for finished tasks (and for SIGTERM)
+FINISHED_POLL_SECONDS = 0.05       # how often the driver looks for finished tasks (and stop signals)
 
 
 def default_out(spec: EnsembleSpec) -> Path:
@@ -81,6 +81,7 @@ def integrate_batch(spec: EnsembleSpec, indices: tuple[int, ...], folder: str,
         Per system, the wall-clock cap to use instead of ``integration.wall_seconds_max``, s
         (time already spent on a continued system counts against it).
     """
+    from .cluster import worker_ignores_sigint
     from .integrate import integrate_system
     doomed = {int(x) for x in os.environ.get(FAULT_ENV, "").split(",") if x.strip()}
     run = RunFolder(folder)
@@ -92,7 +93,18 @@ def integrate_batch(spec: EnsembleSpec, indices: tuple[int, ...], folder: str,
         if budgets is not None:
             this = dataclasses.replace(spec, integration=dataclasses.replace(
                 spec.integration, wall_seconds_max=budgets[k]))
-        records.append(integrate_system(this, index, checkpoint_path=run.checkpoint_path(index)))
+        while True:
+            try:
+                record = integrate_system(this, index, checkpoint_path=run.checkpoint_path(index))
+                break
+            except KeyboardInterrupt:
+                # REBOUND turns a SIGINT during its integration into KeyboardInterrupt.  A local
+                # worker gets the terminal's Ctrl-C together with its driver, which decides whether
+                # the run stops (and then closes this worker): integrate the system again, from its
+                # start or checkpoint (nothing was written), so it ends as it would have anyway.
+                if not worker_ignores_sigint():
+                    raise
+        records.append(record)
     return records
 
 
@@ -179,24 +191,30 @@ class EnsembleRun:
 
     def run(self) -> xr.Dataset:
         """Compute what the folder lacks, gather ensemble.nc and return it (loaded)."""
-        folder = prepare_folder(self.spec, self.out, fresh=self.fresh, log=self.log)
-        with folder.lock():
-            folder.remove_stale_tmp()
-            atomic_write_text(self.spec.text, folder.spec_path)
-            plan = make_plan(self.spec, folder, extend=self.extend, retry_failed=self.retry_failed,
-                             batch_size=self.batch_size, log=self.log)
-            if plan.has_work():
-                folder.checkpoints_dir.mkdir(exist_ok=True)
-                self._compute(plan)
-            else:
-                self.log(f"nothing to compute: {plan.summary()}")
-            if plan.has_work() or not folder.ensemble_is_current(self.spec):
-                t0 = time.monotonic()
-                folder.gather(plan.parts_list(), self.spec)
-                self.timings.gather = time.monotonic() - t0
-                self.log(f"wrote {folder.ensemble_path}")
-            folder.write_state(finished=time.strftime("%Y-%m-%dT%H:%M:%S%z"))
-        return open_ensemble(folder.path)
+        from .cluster import check_terminated, deferred_sigterm
+        # A stop signal (SIGTERM inside connect(); SIGINT too under cluster.stop_signals, as in
+        # `scatter-pop run`) is acted upon only between whole steps, never while a part file, a
+        # merged part or ensemble.nc is being written
+        with deferred_sigterm():
+            folder = prepare_folder(self.spec, self.out, fresh=self.fresh, log=self.log)
+            with folder.lock():
+                folder.remove_stale_tmp()
+                atomic_write_text(self.spec.text, folder.spec_path)
+                plan = make_plan(self.spec, folder, extend=self.extend, retry_failed=self.retry_failed,
+                                 batch_size=self.batch_size, log=self.log)
+                check_terminated()
+                if plan.has_work():
+                    folder.checkpoints_dir.mkdir(exist_ok=True)
+                    self._compute(plan)
+                else:
+                    self.log(f"nothing to compute: {plan.summary()}")
+                if plan.has_work() or not folder.ensemble_is_current(self.spec):
+                    t0 = time.monotonic()
+                    folder.gather(plan.parts_list(), self.spec)
+                    self.timings.gather = time.monotonic() - t0
+                    self.log(f"wrote {folder.ensemble_path}")
+                folder.write_state(finished=time.strftime("%Y-%m-%dT%H:%M:%S%z"))
+            return open_ensemble(folder.path)
 
     # ---- computing
     def _compute(self, plan: Plan) -> None:
@@ -208,8 +226,8 @@ class EnsembleRun:
         widest = max([plan.batch_size, 1] + [len(t.indices) for t in plan.redo])
         longest = self.spec.integration.wall_seconds_max * widest
         t0 = time.monotonic()
-        # SIGTERM is acted upon only between whole steps of the driver (see _finished), never in
-        # the middle of writing a part file
+        # a stop signal is acted upon only between whole steps of the driver (see _finished), never
+        # in the middle of writing a part file
         with connect(config, workers=self.workers, scheduler=self.scheduler,
                      longest_task_seconds=longest) as client, deferred_sigterm():
             self.timings.connect = time.monotonic() - t0
@@ -317,9 +335,10 @@ class EnsembleRun:
 def _finished(done_iter):
     """The futures of ``done_iter`` (``distributed.as_completed``) as they finish.
 
-    Waits by polling rather than blocking in ``as_completed``, so that a SIGTERM received by
-    :func:`scatter_pop.cluster.connect` (deferred while the driver writes parts) is raised here,
-    between two results, within ``FINISHED_POLL_SECONDS``.
+    Waits by polling rather than blocking in ``as_completed``, so that a stop signal (SIGTERM
+    received by :func:`scatter_pop.cluster.connect`, SIGINT too under
+    :func:`scatter_pop.cluster.stop_signals`), deferred while the driver writes parts, is raised
+    here, between two results, within ``FINISHED_POLL_SECONDS``.
     """
     from .cluster import check_terminated
     while True:
