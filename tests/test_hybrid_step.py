@@ -15,7 +15,9 @@ from scatter_pop.constants import G_AU_YR_MSUN, MJUP_MSUN, R_JUP_AU, R_SUN_AU
 from scatter_pop.initial_conditions import InitialSystem
 from scatter_pop.integrate import HYBRID_CHECK_STEPS, STEP_CHANGE, _SystemRun, integrate_initial
 from scatter_pop.outcome import EndReason, Fate
-from scatter_pop.spec import IntegrationSpec, OutcomeSpec, parse_spec
+from scatter_pop.spec import IntegrationSpec, OutcomeSpec
+
+from tight_trio import tight_trio_spec
 
 MJ, RJ = MJUP_MSUN, R_JUP_AU
 GM = G_AU_YR_MSUN * (1.0 + MJ)
@@ -74,26 +76,8 @@ def test_small_changes_keep_the_step():
 def test_step_is_rechosen_after_a_merger_inside_a_chunk():
     # three tightly packed Jupiters with inflated radii merge early; check = 1000 orbits, so the
     # merger happens inside the first chunk and the step must be re-chosen at the next check
-    spec = parse_spec("""
-[run]
-seed = 7
-systems = 2
-[star]
-mass = 1.0
-[planets]
-count = 3
-mass = 1.0
-a_inner = 1.0
-spacing = 2.2
-e_sigma = 0.05
-inc_sigma = 1.0
-radius = 2.0
-[integration]
-integrator = "trace"
-end_time = 60.0
-ejection_distance = 30.0
-check_orbits = 1000
-""")
+    spec = tight_trio_spec("trace", 60.0, 1000)
+
     from scatter_pop.initial_conditions import draw_system
     run = _SystemRun(draw_system(spec, 1), spec.integration, spec.outcomes, None, False)
     record = run.run()

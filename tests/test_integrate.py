@@ -19,8 +19,10 @@ from scatter_pop.initial_conditions import InitialSystem, draw_system, spaced_se
 from scatter_pop.integrate import _SystemRun, integrate_initial, integrate_system
 from scatter_pop.outcome import EndReason, Fate
 from scatter_pop.schema import records_to_dataset, validate_dataset
-from scatter_pop.spec import IntegrationSpec, OutcomeSpec, load_spec, parse_spec
+from scatter_pop.spec import IntegrationSpec, OutcomeSpec, load_spec
 from scatter_pop.stability import hill_stable_circular, marchal_bozis_ratio, marchal_bozis_state_ratio
+
+from tight_trio import tight_trio_spec
 
 MJ, RJ = MJUP_MSUN, R_JUP_AU
 TINY = Path(__file__).parent / "data" / "tiny.toml"
@@ -194,32 +196,10 @@ def test_same_spec_and_index_give_the_bitwise_same_record():
     assert r3.seed != r1.seed and r3.planets[0].e_initial != r1.planets[0].e_initial
 
 
-CAPPED = """
-[run]
-seed = 7
-systems = 4
-[star]
-mass = 1.0
-[planets]
-count = 3
-mass = 1.0
-a_inner = 1.0
-spacing = 2.2
-e_sigma = 0.05
-inc_sigma = 1.0
-radius = 2.0
-[integration]
-integrator = "%s"
-end_time = %s
-ejection_distance = 30.0
-check_orbits = %s
-"""
-
-
 @pytest.mark.parametrize("integrator, end_time, check, index", [("ias15", 80.0, 20, 2), ("trace", 60.0, 5, 1)])
 def test_capped_run_continued_from_checkpoint_equals_the_uncapped_run(tmp_path, integrator, end_time, check, index):
     # REBOUND binary + ledger restart; chunk ends fixed in time, exact_finish_time = 0
-    spec = parse_spec(CAPPED % (integrator, end_time, check))
+    spec = tight_trio_spec(integrator, end_time, check)
     whole = integrate_system(spec, index)
     assert whole.count(Fate.MERGED) >= 1                    # a merger happens on the way
     capped = replace(spec, integration=replace(spec.integration, wall_seconds_max=1e-9))
@@ -248,7 +228,7 @@ def test_continuation_does_not_trust_rebound_names_after_a_reload(tmp_path):
 
     from scatter_pop.ledger import read_checkpoint, write_checkpoint
 
-    spec = parse_spec(CAPPED % ("ias15", 80.0, 20))
+    spec = tight_trio_spec("ias15", 80.0, 20)
     whole = integrate_system(spec, 2)
     assert whole.count(Fate.MERGED) >= 1
     capped = replace(spec, integration=replace(spec.integration, wall_seconds_max=1e-9))
@@ -268,7 +248,7 @@ def test_continuation_does_not_trust_rebound_names_after_a_reload(tmp_path):
 
 
 def test_checkpoint_of_another_system_is_refused(tmp_path):
-    spec = parse_spec(CAPPED % ("ias15", 80.0, 20))
+    spec = tight_trio_spec("ias15", 80.0, 20)
     capped = replace(spec, integration=replace(spec.integration, wall_seconds_max=1e-9))
     path = tmp_path / "c.ckpt"
     assert integrate_system(capped, 0, checkpoint_path=path).end_reason == EndReason.CAPPED
