@@ -16,7 +16,7 @@ adds what a long run on an allocation needs:
 * a refused submission (bad partition, account, ...) raises :class:`InputError` at once instead
   of leaving the run waiting for workers that never come;
 * SIGTERM to the driver unwinds the ``with`` block, so the worker jobs are cancelled.  Start-up,
-  clean-up and any caller's :func:`deferred_sigterm` block only record it; :func:`check_terminated`
+  clean-up and any caller's :func:`deferred_stop` block only record it; :func:`check_terminated`
   raises it between whole steps (never inside a lock).  After it, Dask's log lines and tracebacks,
   local workers' included, stay off the user's terminal; a clean-up that takes over
   ``TERM_GRACE_SECONDS`` ends the process.  Under :func:`stop_signals` (the ``scatter-pop run``
@@ -47,7 +47,7 @@ if TYPE_CHECKING:
 
 __all__ = ["ClusterConfig", "KINDS", "ALLOWED_FAILURES", "WalltimeWarning", "load_cluster_file",
            "apply_overrides", "connect", "job_script", "configure_dask", "check_walltime",
-           "deferred_sigterm", "check_terminated", "stop_signals", "worker_ignores_sigint"]
+           "deferred_stop", "check_terminated", "stop_signals", "worker_ignores_sigint"]
 
 ALLOWED_FAILURES = 5       # worker deaths a task may witness before it is declared failed
 JOB_NAME = "scatter-pop"   # name of the worker jobs in squeue / qstat
@@ -179,7 +179,7 @@ class _Activation:
 
 
 _CURRENT: _Activation | None = None    # the active handling (main thread's connect() or command)
-_DEFER = 0                             # depth of deferred_sigterm() blocks in the main thread
+_DEFER = 0                             # depth of deferred_stop() blocks in the main thread
 _WORKER_IGNORES_SIGINT = False         # set in local worker processes by dask_setup
 
 
@@ -231,7 +231,7 @@ def _on_signal(act: _Activation, signum, frame) -> None:
 
 def check_terminated() -> None:
     """Raise ``SystemExit(128 + signal)`` if a stop signal (SIGTERM; SIGINT under
-    :func:`stop_signals`) arrived inside :func:`deferred_sigterm` and has not been raised yet; a
+    :func:`stop_signals`) arrived inside :func:`deferred_stop` and has not been raised yet; a
     no-op otherwise.  Call it where unwinding is safe (between whole operations)."""
     act = _CURRENT
     if act is not None and act.signum is not None and not act.raised:
@@ -239,7 +239,7 @@ def check_terminated() -> None:
 
 
 @contextmanager
-def deferred_sigterm() -> Iterator[None]:
+def deferred_stop() -> Iterator[None]:
     """Inside, a stop signal to the driver (SIGTERM; SIGINT too under :func:`stop_signals`) is only
     recorded; it is raised as ``SystemExit`` by the next :func:`check_terminated` or on leaving
     the block.
@@ -310,7 +310,7 @@ def _grace_watchdog(act: _Activation) -> None:
 @contextmanager
 def _stopping(signums: tuple[int, ...], prog: str, final: bool) -> Iterator[None]:
     """While inside, a stop signal raises ``SystemExit(128 + signal)`` in the main thread (at once,
-    or at the next :func:`check_terminated` inside :func:`deferred_sigterm`), so ``finally`` blocks
+    or at the next :func:`check_terminated` inside :func:`deferred_stop`), so ``finally`` blocks
     run.  An ignored SIGINT (a shell's background job, ``nohup``) stays ignored.  ``final`` (a
     command's handling, :func:`stop_signals`): a stop leaving the block writes the user's one line,
     and the handlers stay, so that Ctrl-C pressed again still ends the process at once."""
@@ -362,7 +362,7 @@ def stop_signals(prog: str) -> Iterator[None]:
     SIGINT (Ctrl-C) both stop it the same way.
 
     Inside, either signal is handled as connect() handles SIGTERM: recorded inside
-    :func:`deferred_sigterm` blocks (the ensemble driver runs in one), raised as ``SystemExit(143)``
+    :func:`deferred_stop` blocks (the ensemble driver runs in one), raised as ``SystemExit(143)``
     or ``SystemExit(130)`` (128 + the signal number, as shells report it) only at safe points, the
     clean-up runs, and the user gets one line on stderr, ``PROG: interrupted; finished parts are
     kept, rerun the same command to resume`` (``terminated`` for SIGTERM).  SIGINT again while the
@@ -495,7 +495,7 @@ def connect(config: ClusterConfig, *, workers: int | None = None, scheduler: str
     with _sigterm_unwinds():
         cluster = client = None
         try:
-            with deferred_sigterm():       # starting up is not interrupted half-way
+            with deferred_stop():       # starting up is not interrupted half-way
                 if config.kind == "address":
                     client = _client_for_address(config.address)
                     _warn_scheduler_settings(client)
@@ -506,5 +506,5 @@ def connect(config: ClusterConfig, *, workers: int | None = None, scheduler: str
                         _wait_for_submission(cluster, config.kind)
             yield client
         finally:
-            with deferred_sigterm():       # nor is the clean-up
+            with deferred_stop():       # nor is the clean-up
                 _close(client, cluster, config.kind)

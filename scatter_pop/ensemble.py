@@ -191,11 +191,11 @@ class EnsembleRun:
 
     def run(self) -> xr.Dataset:
         """Compute what the folder lacks, gather ensemble.nc and return it (loaded)."""
-        from .cluster import check_terminated, deferred_sigterm
+        from .cluster import check_terminated, deferred_stop
         # A stop signal (SIGTERM inside connect(); SIGINT too under cluster.stop_signals, as in
         # `scatter-pop run`) is acted upon only between whole steps, never while a part file, a
         # merged part or ensemble.nc is being written
-        with deferred_sigterm():
+        with deferred_stop():
             folder = prepare_folder(self.spec, self.out, fresh=self.fresh, log=self.log)
             with folder.lock():
                 folder.remove_stale_tmp()
@@ -221,7 +221,7 @@ class EnsembleRun:
         if self.client is not None:
             self._drive(self.client, plan)
             return
-        from .cluster import connect, deferred_sigterm
+        from .cluster import connect, deferred_stop
         config = self.cluster if self.cluster is not None else self.spec.cluster
         widest = max([plan.batch_size, 1] + [len(t.indices) for t in plan.redo])
         longest = self.spec.integration.wall_seconds_max * widest
@@ -229,7 +229,7 @@ class EnsembleRun:
         # a stop signal is acted upon only between whole steps of the driver (see _finished), never
         # in the middle of writing a part file
         with connect(config, workers=self.workers, scheduler=self.scheduler,
-                     longest_task_seconds=longest) as client, deferred_sigterm():
+                     longest_task_seconds=longest) as client, deferred_stop():
             self.timings.connect = time.monotonic() - t0
             self._drive(client, plan)
 

@@ -124,7 +124,7 @@ def test_ctrl_c_while_a_lock_is_held_waits_for_the_lock_to_be_released(tmp_path)
     proc = _run_script(tmp_path, """
         import os, signal, threading, time
         from scatter_pop import cluster
-        with cluster.stop_signals("driver"), cluster.deferred_sigterm():
+        with cluster.stop_signals("driver"), cluster.deferred_stop():
             lock = threading.Lock()
             lock.acquire()
             os.kill(os.getpid(), signal.SIGINT)

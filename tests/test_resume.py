@@ -143,7 +143,7 @@ def test_sigterm_stops_the_run_cleanly_and_it_resumes(tmp_path, ref):
 _DEFERRED = """
 import gc, os, signal, threading, time
 from scatter_pop import cluster
-with cluster._sigterm_unwinds(), cluster.deferred_sigterm():
+with cluster._sigterm_unwinds(), cluster.deferred_stop():
     {body}
     print("still working", flush=True)
     cluster.check_terminated()
