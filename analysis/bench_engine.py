@@ -1,6 +1,6 @@
 """Benchmark (not a test): the engine's integration paths against the IAS15 reference.
 
-A thin wrapper of :func:`scatter_pop.bench.run_benchmark` (also ``scatter-pop bench``).  Example, the
+A thin wrapper of :func:`scatter_pop.ensemble.bench.run_benchmark` (also ``scatter-pop bench``).  Example, the
 run behind the README's performance table:
 
     .venv/bin/python analysis/bench_engine.py --systems 200 --end-time 1e5 --workers 2 \
@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import sys
 
-from scatter_pop.cli import main
+from scatter_pop.cli.main import main
 
 if __name__ == "__main__":
     sys.exit(main(["bench", *sys.argv[1:]]))

@@ -21,9 +21,9 @@ import tempfile
 import time
 from pathlib import Path
 
-from scatter_pop.cluster import ClusterConfig, connect
-from scatter_pop.ensemble import EnsembleRun
-from scatter_pop.spec import parse_spec
+from scatter_pop.ensemble.cluster import ClusterConfig, connect
+from scatter_pop.ensemble.driver import EnsembleRun
+from scatter_pop.spec.reader import parse_spec
 
 SPEC = """\
 # Invented benchmark system: a Sun-like star and three Jupiter-mass planets packed at 3.5-4.5

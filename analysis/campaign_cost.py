@@ -22,8 +22,8 @@ import math
 import time
 
 from scatter_pop.constants import G_AU_YR_MSUN
-from scatter_pop.integrate import integrate_system
-from scatter_pop.spec import load_spec
+from scatter_pop.engine.integrate import integrate_system
+from scatter_pop.spec.reader import load_spec
 
 
 def inner_period(spec) -> float:

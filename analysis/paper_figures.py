@@ -7,11 +7,11 @@
 
 Writes into ``--out``:
 
-* the figure set of :func:`scatter_pop.figure_set.write_figure_set`, each ensemble a
+* the figure set of :func:`scatter_pop.paper.figure_set.write_figure_set`, each ensemble a
   panel or a line, with the CSV of every plotted number;
 * ``outcomes_table.tex``: branching ratios and KS/AD statistics (booktabs);
 * ``comparison.tex`` / ``.json`` / ``.txt``: the full comparison with the observed catalogue
-  (:func:`scatter_pop.compare.compare`: permutation AD p-values, their spread over the observed
+  (:func:`scatter_pop.survey.comparison.compare`: permutation AD p-values, their spread over the observed
   error bars and over bootstrap resamples, one-sample tests against published laws), plus a
   row pooling all runs.
 
@@ -24,14 +24,14 @@ import argparse
 import sys
 from pathlib import Path
 
-from scatter_pop.compare import CompareOptions, compare
+from scatter_pop.survey.comparison import CompareOptions, compare
 from scatter_pop.constants import MJUP_MSUN
-from scatter_pop.cuts import SampleCuts, check_range
+from scatter_pop.survey.cuts import SampleCuts, check_range
 from scatter_pop.errors import InputError
-from scatter_pop.figure_set import write_figure_set
-from scatter_pop.observed import load_catalogue
-from scatter_pop.report_tables import render
-from scatter_pop.simulated import RVSurvey
+from scatter_pop.paper.figure_set import write_figure_set
+from scatter_pop.survey.catalogue import load_catalogue
+from scatter_pop.survey.report import render
+from scatter_pop.survey.forward_model import RVSurvey
 
 ROOT = Path(__file__).resolve().parent.parent
 DEFAULT_OBSERVED = ROOT / "tests" / "data" / "observed_rv_giants.csv"
@@ -72,8 +72,8 @@ def build(dirs, labels, out, *, observed=DEFAULT_OBSERVED, rv_survey=None, a_ran
     draws, permutations : int
         Error-bar / bootstrap redraws and AD permutations of the comparison.
     """
-    from scatter_pop.compare import load_ensemble
-    from scatter_pop.store import atomic_write_text
+    from scatter_pop.survey.comparison import load_ensemble
+    from scatter_pop.store.run_folder import atomic_write_text
     if len(labels) != len(dirs):
         raise InputError(f"--labels: {len(labels)} names for {len(dirs)} runs")
     cuts = SampleCuts(a=None if a_range is None else check_range(*a_range, "--a-range"),

@@ -1,3 +1,3 @@
-from .cli import entry
+from scatter_pop.cli.main import entry
 
 entry()

@@ -1,7 +1,7 @@
 """Hand-made ensembles for the comparison tests (not real integrations).
 
 Each system has a known set of final orbits, written with the project's own
-schema (scatter_pop.schema.records_to_dataset), so the tests know exactly what
+schema (scatter_pop.store.schema.records_to_dataset), so the tests know exactly what
 a reader of ensemble.nc must find.
 """
 
@@ -12,8 +12,8 @@ import math
 import numpy as np
 
 from scatter_pop.constants import MJUP_MSUN, R_JUP_AU
-from scatter_pop.outcome import EndReason, Fate, PlanetRecord, SystemRecord
-from scatter_pop.schema import records_to_dataset
+from scatter_pop.engine.outcome import EndReason, Fate, PlanetRecord, SystemRecord
+from scatter_pop.store.schema import records_to_dataset
 
 
 def planet(mass_mj, a, e, *, inc=0.0, node=0.0, fate=Fate.SURVIVED, a_initial=None):

@@ -24,7 +24,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from scatter_pop.schema import PHYSICS_VARIABLES
+from scatter_pop.store.schema import PHYSICS_VARIABLES
 
 __all__ = ["TINY_TEXT", "spec_text", "write_spec", "reference", "run_cli", "start_cli", "kill_group",
            "assert_physics_equal", "ensure_program", "SCATTER_POP", "part_files", "wait_for"]
@@ -97,8 +97,8 @@ def reference(systems: int, end_time: float = 300.0, extra: str = ""):
     key = (systems, end_time, extra)
     if key not in _REFERENCE:
         from scatter_pop import parse_spec
-        from scatter_pop.integrate import integrate_system
-        from scatter_pop.schema import records_to_dataset
+        from scatter_pop.engine.integrate import integrate_system
+        from scatter_pop.store.schema import records_to_dataset
         spec = parse_spec(spec_text(systems=systems, end_time=end_time, extra=extra))
         records = [integrate_system(spec, i) for i in range(systems)]
         _REFERENCE[key] = records_to_dataset(records, spec.planets.count)

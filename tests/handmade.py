@@ -2,7 +2,7 @@
 
 Outcome records are written by hand (no integration), so every count in
 them is known; the dataset is built by the one schema function
-(``scatter_pop.schema.records_to_dataset``) and written where a run folder
+(``scatter_pop.store.schema.records_to_dataset``) and written where a run folder
 keeps it (``DIR/ensemble.nc``).  Masses in M_J here, converted to M_sun.
 """
 
@@ -12,8 +12,8 @@ import math
 from pathlib import Path
 
 from scatter_pop.constants import MJUP_MSUN, R_JUP_AU
-from scatter_pop.outcome import EndReason, Fate, PlanetRecord, SystemRecord
-from scatter_pop.schema import records_to_dataset
+from scatter_pop.engine.outcome import EndReason, Fate, PlanetRecord, SystemRecord
+from scatter_pop.store.schema import records_to_dataset
 
 __all__ = ["planet", "system", "dataset", "write_run"]
 

@@ -14,10 +14,10 @@ import pytest
 import scipy.stats
 
 from scatter_pop import cli
-from scatter_pop.bench import bench_spec, format_table, make_paths, summarize
+from scatter_pop.ensemble.bench import bench_spec, format_table, make_paths, summarize
 from scatter_pop.errors import InputError
-from scatter_pop.outcome import EndReason, Fate, PlanetRecord, SystemRecord
-from scatter_pop.spec import INTEGRATORS
+from scatter_pop.engine.outcome import EndReason, Fate, PlanetRecord, SystemRecord
+from scatter_pop.spec.reader import INTEGRATORS
 
 
 # --------------------------------------------------------------------------- paths

@@ -1,4 +1,4 @@
-"""Tests of `scatter-pop compare` through scatter_pop.cli.main (stdout, stderr, exit status)."""
+"""Tests of `scatter-pop compare` through scatter_pop.cli.main.main (stdout, stderr, exit status)."""
 
 import json
 from pathlib import Path
@@ -6,7 +6,7 @@ from pathlib import Path
 import pytest
 
 from compare_fixtures import random_ensemble, write_run
-from scatter_pop.cli import main
+from scatter_pop.cli.main import main
 
 DATA = Path(__file__).parent / "data" / "observed_rv_giants.csv"
 FAST = ["--permutations", "99", "--error-draws", "4", "--bootstrap", "4", "--spread-permutations", "19",
@@ -158,8 +158,8 @@ end_time = 1000.0
 
 def test_real_run_folder_incomplete_then_partial(capsys, tmp_path):
     # a run folder as the ensemble store writes it: spec file plus part files; 40 of 60 systems
-    from scatter_pop.spec import parse_spec
-    from scatter_pop.store import prepare_folder
+    from scatter_pop.spec.reader import parse_spec
+    from scatter_pop.store.run_folder import prepare_folder
     spec = parse_spec(RUN_SPEC)
     folder = prepare_folder(spec, tmp_path / "run", log=lambda *a: None)
     folder.path.mkdir(parents=True)
@@ -177,9 +177,9 @@ def test_real_run_folder_incomplete_then_partial(capsys, tmp_path):
     counts = {c["key"]: c["n"] for c in doc["samples"][0]["counts"]}
     assert counts["systems"] == 40 and counts["survivors"] == 40
     # K used the stored spec's 0.9 M_sun star: compare with radial_velocity for one planet
-    from scatter_pop.simulated import survivor_table
-    from scatter_pop.compare import load_ensemble
-    from scatter_pop import radial_velocity as rv
+    from scatter_pop.survey.forward_model import survivor_table
+    from scatter_pop.survey.comparison import load_ensemble
+    from scatter_pop.survey import radial_velocity as rv
     t = survivor_table(load_ensemble(folder.path, partial=True), rng=0)
     assert t["m_star"][0] == 0.9
     assert t["K"][0] == pytest.approx(rv.semi_amplitude_from_a(t["mass"][0], t["a"][0], t["e"][0], 0.9,

@@ -12,8 +12,8 @@ import re
 
 import pytest
 
-from scatter_pop.cli import main
-from scatter_pop.store import open_ensemble
+from scatter_pop.cli.main import main
+from scatter_pop.store.run_folder import open_ensemble
 
 from ensemble_helpers import run_cli, write_spec
 
@@ -87,7 +87,7 @@ def test_missing_spec_and_non_run_folders(tmp_path, capsys):
 
 @pytest.mark.slow
 def test_run_attached_to_a_running_scheduler(tmp_path):
-    from scatter_pop.cluster import ClusterConfig, connect
+    from scatter_pop.ensemble.cluster import ClusterConfig, connect
     spec = write_spec(tmp_path / "tiny.toml", systems=3)
     with connect(ClusterConfig(dashboard_port=0), workers=1) as client:
         address = client.scheduler.address

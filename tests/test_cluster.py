@@ -30,9 +30,9 @@ import dask
 import pytest
 from hypothesis import given, settings, strategies as st
 
-from scatter_pop.cluster import (ClusterConfig, WalltimeWarning, check_walltime, configure_dask,
+from scatter_pop.ensemble.cluster import (ClusterConfig, WalltimeWarning, check_walltime, configure_dask,
                                  connect, job_script, load_cluster_file)
-from scatter_pop.cluster_config import apply_overrides, walltime_seconds, worker_lifetime
+from scatter_pop.spec.cluster_table import apply_overrides, walltime_seconds, worker_lifetime
 from scatter_pop.errors import InputError
 
 # -- validation: one line naming the key, the bad value and what is allowed -----------------
@@ -345,7 +345,7 @@ def test_sigterm_to_the_driver_closes_the_cluster(tmp_path):
     """SIGTERM (preemption, `kill`) unwinds connect(): its clean-up runs, exit status 143."""
     driver = textwrap.dedent("""
         import sys, time
-        from scatter_pop.cluster import ClusterConfig, connect
+        from scatter_pop.ensemble.cluster import ClusterConfig, connect
         try:
             with connect(ClusterConfig(dashboard_port=0), workers=1) as client:
                 client.submit(int, 1).result()
@@ -367,12 +367,11 @@ def test_sigterm_to_the_driver_closes_the_cluster(tmp_path):
     assert out.strip() == "closed closed"
 
 
-def test_readme_documents_every_cluster_key():
-    """README "Running on a cluster" has a table row for every [cluster] key (common practice)."""
+def test_docs_document_every_cluster_key():
+    """docs/cluster.md has a table row for every [cluster] key (common practice)."""
     from dataclasses import fields
     from pathlib import Path
-    readme = (Path(__file__).resolve().parent.parent / "README.md").read_text()
-    section = readme.split("<!-- section: cluster -->", 1)[1].split("\n## ", 1)[0]
+    section = (Path(__file__).resolve().parents[1] / "docs" / "cluster.md").read_text()
     for f in fields(ClusterConfig):
         assert f"| `{f.name}` |" in section, f.name
 
@@ -384,9 +383,9 @@ def test_sigterm_with_a_hanging_clean_up_still_ends_the_process(tmp_path):
     script = tmp_path / "hang.py"
     script.write_text(textwrap.dedent("""
         import sys, time
-        from scatter_pop import cluster
-        cluster.TERM_GRACE_SECONDS = 1.0
-        with cluster._sigterm_unwinds():
+        from scatter_pop.ensemble import cluster, stop_signals
+        stop_signals.TERM_GRACE_SECONDS = 1.0
+        with stop_signals.sigterm_unwinds():
             try:
                 print("ready", flush=True)
                 time.sleep(60)

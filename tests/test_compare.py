@@ -1,4 +1,4 @@
-"""Tests of scatter_pop.compare and scatter_pop.report_tables on hand-made ensembles."""
+"""Tests of scatter_pop.survey.comparison and scatter_pop.survey.report on hand-made ensembles."""
 
 import csv
 import io
@@ -8,13 +8,13 @@ import numpy as np
 import pytest
 
 from compare_fixtures import random_ensemble, write_run
-from scatter_pop.compare import CompareOptions, compare, load_ensemble
-from scatter_pop.cuts import Range, SampleCuts
+from scatter_pop.survey.comparison import CompareOptions, compare, load_ensemble
+from scatter_pop.survey.cuts import Range, SampleCuts
 from scatter_pop.errors import InputError
-from scatter_pop.observed import load_catalogue
-from scatter_pop.report_tables import FORMATS, render, report_to_dict
-from scatter_pop.simulated import RESCALE_NOTE, RVSurvey
-from scatter_pop.statistics import reference_distribution
+from scatter_pop.survey.catalogue import load_catalogue
+from scatter_pop.survey.report import FORMATS, render, report_to_dict
+from scatter_pop.survey.forward_model import RESCALE_NOTE, RVSurvey
+from scatter_pop.survey.statistics import reference_distribution
 
 FAST = dict(permutations=199, uncertainty_draws=8, bootstrap_draws=8, spread_permutations=49,
             reference_samples=199)

@@ -7,8 +7,8 @@ from pathlib import Path
 
 import pytest
 
-from scatter_pop import demo
-from scatter_pop.spec import load_spec
+from scatter_pop.cli import demo
+from scatter_pop.spec.reader import load_spec
 
 TINY = """
 # tiny demo-like ensemble for the test (invented scenario)

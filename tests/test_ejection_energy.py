@@ -27,10 +27,10 @@ import pytest
 import rebound
 
 from scatter_pop.constants import G_AU_YR_MSUN, MJUP_MSUN, R_JUP_AU, R_SUN_AU
-from scatter_pop.initial_conditions import InitialSystem, draw_system
-from scatter_pop.integrate import integrate_initial, integrate_system
-from scatter_pop.outcome import EndReason, Fate
-from scatter_pop.spec import IntegrationSpec, OutcomeSpec, parse_spec
+from scatter_pop.engine.initial_conditions import InitialSystem, draw_system
+from scatter_pop.engine.integrate import integrate_initial, integrate_system
+from scatter_pop.engine.outcome import EndReason, Fate
+from scatter_pop.spec.reader import IntegrationSpec, OutcomeSpec, parse_spec
 
 G = G_AU_YR_MSUN
 

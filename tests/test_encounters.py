@@ -8,9 +8,9 @@ import rebound
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from scatter_pop import encounters as enc
+from scatter_pop.engine import encounters as enc
 from scatter_pop.constants import G_AU_YR_MSUN, MJUP_MSUN, R_JUP_AU, R_SUN_AU
-from scatter_pop.ledger import FateEntry, Ledger, read_checkpoint, write_checkpoint
+from scatter_pop.engine.ledger import FateEntry, Ledger, read_checkpoint, write_checkpoint
 from scatter_pop.errors import InputError
 
 vec = st.lists(st.floats(-10, 10), min_size=3, max_size=3)

@@ -15,11 +15,11 @@ import numpy as np
 import pytest
 
 import scatter_pop
-from scatter_pop.cluster import ClusterConfig, connect
-from scatter_pop.initial_conditions import draw_system
-from scatter_pop.outcome import EndReason
-from scatter_pop.schema import validate_dataset
-from scatter_pop.spec import parse_spec
+from scatter_pop.ensemble.cluster import ClusterConfig, connect
+from scatter_pop.engine.initial_conditions import draw_system
+from scatter_pop.engine.outcome import EndReason
+from scatter_pop.store.schema import validate_dataset
+from scatter_pop.spec.reader import parse_spec
 
 from ensemble_helpers import assert_physics_equal, part_files, reference, spec_text
 
@@ -141,7 +141,7 @@ def test_system_whose_integration_raises_is_isolated_then_retried(tmp_path, clie
 
 
 def test_many_small_parts_are_consolidated_without_changing_anything(ref, tmp_path, client, monkeypatch):
-    import scatter_pop.plan as plan
+    import scatter_pop.ensemble.plan as plan
     monkeypatch.setattr(plan, "CONSOLIDATE_PARTS", 4)
     spec = parse_spec(spec_text(systems=N, end_time=T_END))
     ds = scatter_pop.run_ensemble(spec, out=tmp_path / "run", client=client, batch_size=1, **QUIET)

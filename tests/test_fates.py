@@ -10,11 +10,12 @@ import numpy as np
 import pytest
 
 from scatter_pop.constants import G_AU_YR_MSUN, MJUP_MSUN, R_JUP_AU, R_SUN_AU
-from scatter_pop.initial_conditions import InitialSystem
-from scatter_pop.integrate import _SystemRun, integrate_initial
-from scatter_pop.outcome import NO_PLANET, EndReason, Fate
-from scatter_pop.spec import IntegrationSpec, OutcomeSpec
-from scatter_pop.stability import tidal_disruption_radius
+from scatter_pop.engine.initial_conditions import InitialSystem
+from scatter_pop.engine.integrate import integrate_initial
+from scatter_pop.engine.rebound_run import SystemRun
+from scatter_pop.engine.outcome import NO_PLANET, EndReason, Fate
+from scatter_pop.spec.reader import IntegrationSpec, OutcomeSpec
+from scatter_pop.engine.stability import tidal_disruption_radius
 
 MJ, RJ = MJUP_MSUN, R_JUP_AU
 
@@ -47,7 +48,7 @@ def head_on(phase=0.5):
 
 def test_head_on_collision_merges_conserving_mass_and_momentum():
     initial = head_on()
-    sim_run = _SystemRun(initial, IntegrationSpec(end_time=5.0), OutcomeSpec(), None, True)
+    sim_run = SystemRun(initial, IntegrationSpec(end_time=5.0), OutcomeSpec(), None, True)
     p_before = total_momentum(sim_run.sim)
     scale = MJ * 2 * math.pi * math.sqrt(1 / 5.0)          # planet momentum scale, M_sun AU/yr
     assert np.linalg.norm(p_before) < 1e-15 * scale           # centre-of-mass frame
@@ -123,7 +124,7 @@ def test_bound_planet_beyond_ejection_distance_is_kept():
 
 def test_bound_wanderer_returns_and_escape_radius_is_reset():
     initial = wanderer(0.95, 100.0)
-    sim_run = _SystemRun(initial, IntegrationSpec(end_time=1.05 * period(100.0), ejection_distance=100.0),
+    sim_run = SystemRun(initial, IntegrationSpec(end_time=1.05 * period(100.0), ejection_distance=100.0),
                          OutcomeSpec(), None, True)
     rec = sim_run.run()
     assert rec.planets[1].fate == Fate.SURVIVED
@@ -154,7 +155,7 @@ def test_plunging_orbit_hits_the_star():
 def test_pericentre_inside_disruption_distance_disrupts():
     # 2.7 r_t = 0.0131 AU for Jupiter (Guillochon, Ramirez-Ruiz & Lin 2011, ApJ 732, 74; REFERENCES.md);
     # q = 0.010 AU is outside the star (R_sun + R_J = 0.0051 AU) but inside 2.7 r_t.
-    sim_run = _SystemRun(plunger(0.010), IntegrationSpec(end_time=10.0), OutcomeSpec(), None, False)
+    sim_run = SystemRun(plunger(0.010), IntegrationSpec(end_time=10.0), OutcomeSpec(), None, False)
     rec = sim_run.run()
     p = rec.planets[0]
     assert p.fate == Fate.DISRUPTED
@@ -194,7 +195,7 @@ def test_energy_books_close_through_a_merger_and_an_ejection():
     # a 2:1 mass head-on merger at 5 AU and a hyperbolic planet leaving from 8 AU
     initial = system([dict(m=2 * MJ, a=5.0, e=0.0), dict(m=MJ, a=5.0, e=0.0, inc=math.pi, M=-0.5),
                       dict(m=MJ, a=-40.0, e=1.2, omega=2.0)])
-    sim_run = _SystemRun(initial, IntegrationSpec(end_time=3000.0, ejection_distance=60.0), OutcomeSpec(),
+    sim_run = SystemRun(initial, IntegrationSpec(end_time=3000.0, ejection_distance=60.0), OutcomeSpec(),
                          None, False)
     e0 = sim_run.sim.energy()
     rec = sim_run.run()

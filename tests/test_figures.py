@@ -12,7 +12,7 @@ from PIL import Image
 
 from handmade import planet, system, write_run
 from scatter_pop import cli
-from scatter_pop.outcome import EndReason, Fate
+from scatter_pop.engine.outcome import EndReason, Fate
 
 OBSERVED = "tests/data/observed_rv_giants.csv"
 FIGURES = ("e_histogram_by_branch", "e_cdf", "a_e_plane", "branching_ratios", "instability_times",

@@ -12,10 +12,11 @@ import numpy as np
 import pytest
 
 from scatter_pop.constants import G_AU_YR_MSUN, MJUP_MSUN, R_JUP_AU, R_SUN_AU
-from scatter_pop.initial_conditions import InitialSystem
-from scatter_pop.integrate import HYBRID_CHECK_STEPS, STEP_CHANGE, _SystemRun, integrate_initial
-from scatter_pop.outcome import EndReason, Fate
-from scatter_pop.spec import IntegrationSpec, OutcomeSpec
+from scatter_pop.engine.initial_conditions import InitialSystem
+from scatter_pop.engine.integrate import integrate_initial
+from scatter_pop.engine.rebound_run import HYBRID_CHECK_STEPS, STEP_CHANGE, SystemRun
+from scatter_pop.engine.outcome import EndReason, Fate
+from scatter_pop.spec.reader import IntegrationSpec, OutcomeSpec
 
 from tight_trio import tight_trio_spec
 
@@ -36,7 +37,7 @@ def wide_pair():
 
 @pytest.mark.parametrize("integrator", ["trace", "mercurius"])
 def test_step_is_rechosen_within_a_chunk_after_an_inward_scatter(integrator):
-    run = _SystemRun(wide_pair(), IntegrationSpec(integrator=integrator, end_time=1e4, check_orbits=1e4),
+    run = SystemRun(wide_pair(), IntegrationSpec(integrator=integrator, end_time=1e4, check_orbits=1e4),
                      OutcomeSpec(), None, True)
     sim = run.sim
     assert sim.dt == pytest.approx(kepler_step(5.0, 0.0), rel=1e-6)      # circular: the period / 50
@@ -64,7 +65,7 @@ def test_step_is_rechosen_within_a_chunk_after_an_inward_scatter(integrator):
 
 def test_small_changes_keep_the_step():
     # a planet's orbit wobbling by a few per cent does not touch the step (symplectic map kept)
-    run = _SystemRun(wide_pair(), IntegrationSpec(integrator="trace", end_time=1e4, check_orbits=1e4),
+    run = SystemRun(wide_pair(), IntegrationSpec(integrator="trace", end_time=1e4, check_orbits=1e4),
                      OutcomeSpec(), None, True)
     p = run.sim.particles[1]
     p.vx, p.vy, p.vz = (1.02 * np.asarray(p.vxyz)).tolist()
@@ -78,8 +79,8 @@ def test_step_is_rechosen_after_a_merger_inside_a_chunk():
     # merger happens inside the first chunk and the step must be re-chosen at the next check
     spec = tight_trio_spec("trace", 60.0, 1000)
 
-    from scatter_pop.initial_conditions import draw_system
-    run = _SystemRun(draw_system(spec, 1), spec.integration, spec.outcomes, None, False)
+    from scatter_pop.engine.initial_conditions import draw_system
+    run = SystemRun(draw_system(spec, 1), spec.integration, spec.outcomes, None, False)
     record = run.run()
     merge_times = [p.t_fate for p in record.planets if p.fate == Fate.MERGED]
     assert merge_times and record.t_end < 1000 * run.p_in                # the run stayed in chunk 1

@@ -9,10 +9,10 @@ import scipy.stats
 
 from scatter_pop.constants import MJUP_MSUN, R_JUP_AU
 from scatter_pop.errors import InputError
-from scatter_pop.initial_conditions import (InitialSystem, draw_system, spaced_semi_major_axes,
+from scatter_pop.engine.initial_conditions import (InitialSystem, draw_system, spaced_semi_major_axes,
                                             system_seed)
-from scatter_pop.spec import parse_spec
-from scatter_pop.stability import hill_spacing
+from scatter_pop.spec.reader import parse_spec
+from scatter_pop.engine.stability import hill_spacing
 
 SPEC = """
 [run]

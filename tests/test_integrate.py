@@ -15,12 +15,13 @@ import pytest
 
 from scatter_pop.constants import G_AU_YR_MSUN, MJUP_MSUN, R_JUP_AU, R_SUN_AU
 from scatter_pop.errors import InputError
-from scatter_pop.initial_conditions import InitialSystem, draw_system, spaced_semi_major_axes, true_anomaly
-from scatter_pop.integrate import _SystemRun, integrate_initial, integrate_system
-from scatter_pop.outcome import EndReason, Fate
-from scatter_pop.schema import records_to_dataset, validate_dataset
-from scatter_pop.spec import IntegrationSpec, OutcomeSpec, load_spec
-from scatter_pop.stability import hill_stable_circular, marchal_bozis_ratio, marchal_bozis_state_ratio
+from scatter_pop.engine.initial_conditions import InitialSystem, draw_system, spaced_semi_major_axes, true_anomaly
+from scatter_pop.engine.integrate import integrate_initial, integrate_system
+from scatter_pop.engine.rebound_run import SystemRun
+from scatter_pop.engine.outcome import EndReason, Fate
+from scatter_pop.store.schema import records_to_dataset, validate_dataset
+from scatter_pop.spec.reader import IntegrationSpec, OutcomeSpec, load_spec
+from scatter_pop.engine.stability import hill_stable_circular, marchal_bozis_ratio, marchal_bozis_state_ratio
 
 from tight_trio import tight_trio_spec
 
@@ -45,7 +46,7 @@ def same(rec1, rec2):
 # --------------------------------------------------------------------------- frame and two-body
 def test_simulation_starts_from_astrocentric_elements():
     ini = draw_system(load_spec(TINY), 2)
-    sim = _SystemRun(ini, IntegrationSpec(end_time=1.0), OutcomeSpec(), None, True).sim
+    sim = SystemRun(ini, IntegrationSpec(end_time=1.0), OutcomeSpec(), None, True).sim
     star = sim.particles[0]
     for k in range(ini.count):
         o = sim.particles[f"p{k}"].orbit(primary=star)
@@ -60,7 +61,7 @@ def test_lone_planet_keeps_its_orbit_for_a_thousand_orbits():
     # two-body problem: a and e constant, mean anomaly advancing at n = sqrt(G(M+m)/a^3) (Kepler)
     a, e, m0 = 1.3, 0.3, 0.7
     ini = InitialSystem(1.0, R_SUN_AU, (MJ,), (RJ,), (a,), (e,), (0.2,), (0.4,), (1.1,), (m0,))
-    run = _SystemRun(ini, IntegrationSpec(integrator="ias15", end_orbits=1000.0), OutcomeSpec(), None, True)
+    run = SystemRun(ini, IntegrationSpec(integrator="ias15", end_orbits=1000.0), OutcomeSpec(), None, True)
     rec = run.run()
     p = rec.planets[0]
     assert rec.end_reason == EndReason.END_TIME and p.fate == Fate.SURVIVED
@@ -99,7 +100,7 @@ def test_pairs_outside_the_gladman_boundary_never_meet_in_ten_thousand_orbits():
     for phases in _phase_draws():
         ini = pair(4.0, phases)
         assert hill_stable_circular(1.0, MJ, MJ, ini.a[0], ini.a[1])
-        run = _SystemRun(ini, IntegrationSpec(integrator="ias15", end_orbits=1e4), OutcomeSpec(), None, True)
+        run = SystemRun(ini, IntegrationSpec(integrator="ias15", end_orbits=1e4), OutcomeSpec(), None, True)
         m, x, v = run._arrays()
         assert marchal_bozis_state_ratio(m, x, v, G_AU_YR_MSUN) > 1.0
         rec = run.run()
@@ -113,7 +114,7 @@ def test_first_encounter_time_matches_dense_sampling_within_one_step(integrator,
     # the engine samples the separation at every integrator step end; a dense, independent sampling
     # (every P/1000, same definition: R_H,m from osculating astrocentric a) must agree to one step.
     ini = pair(2.0, (0.0, 2.0))
-    run = _SystemRun(ini, IntegrationSpec(integrator=integrator, end_orbits=20.0), OutcomeSpec(), None, True)
+    run = SystemRun(ini, IntegrationSpec(integrator=integrator, end_orbits=20.0), OutcomeSpec(), None, True)
     with pytest.warns(RuntimeWarning, match="function pointers"):
         dense = run.sim.copy()                               # no resolve function: no contacts
     dense.collision = "none"
@@ -179,7 +180,7 @@ def test_hybrid_step_follows_the_shortest_orbit():
     # dt = 2 pi sqrt(q^3 / (G M (1+e))) / steps_per_orbit of the most demanding orbit
     ini = InitialSystem(1.0, R_SUN_AU, (MJ, MJ), (RJ, RJ), (1.0, 5.0), (0.0, 0.9), (0.0, 0.0), (0.0, 0.0),
                         (0.0, 0.0), (0.0, math.pi))
-    run = _SystemRun(ini, IntegrationSpec(integrator="trace", end_time=1.0, steps_per_orbit=50),
+    run = SystemRun(ini, IntegrationSpec(integrator="trace", end_time=1.0, steps_per_orbit=50),
                      OutcomeSpec(), None, True)
     q, e = 0.5, 0.9
     expected = 2 * math.pi * math.sqrt(q**3 / (G_AU_YR_MSUN * (1 + MJ) * (1 + e))) / 50
@@ -226,7 +227,7 @@ def test_continuation_does_not_trust_rebound_names_after_a_reload(tmp_path):
     uncapped one."""
     import rebound
 
-    from scatter_pop.ledger import read_checkpoint, write_checkpoint
+    from scatter_pop.engine.ledger import read_checkpoint, write_checkpoint
 
     spec = tight_trio_spec("ias15", 80.0, 20)
     whole = integrate_system(spec, 2)

@@ -20,8 +20,8 @@ import textwrap
 import pytest
 import xarray as xr
 
-from scatter_pop.cli_status import status_lines
-from scatter_pop.store import open_ensemble
+from scatter_pop.cli.status import status_lines
+from scatter_pop.store.run_folder import open_ensemble
 
 from ensemble_helpers import (SCATTER_POP, assert_physics_equal, kill_group, part_files, reference,
                               run_cli, wait_for, write_spec)
@@ -123,8 +123,8 @@ def test_ctrl_c_while_a_lock_is_held_waits_for_the_lock_to_be_released(tmp_path)
     again, waiting forever."""
     proc = _run_script(tmp_path, """
         import os, signal, threading, time
-        from scatter_pop import cluster
-        with cluster.stop_signals("driver"), cluster.deferred_stop():
+        from scatter_pop.ensemble import cluster, stop_signals
+        with stop_signals.stop_signals("driver"), stop_signals.deferred_stop():
             lock = threading.Lock()
             lock.acquire()
             os.kill(os.getpid(), signal.SIGINT)
@@ -133,7 +133,7 @@ def test_ctrl_c_while_a_lock_is_held_waits_for_the_lock_to_be_released(tmp_path)
             print("released", lock.acquire(timeout=5), flush=True)
             lock.release()
             print("still working", flush=True)
-            cluster.check_terminated()
+            stop_signals.check_terminated()
             print("not reached", flush=True)
     """)
     out, err = proc.communicate(timeout=60)
@@ -147,9 +147,9 @@ def test_ctrl_c_again_during_a_hanging_clean_up_ends_the_process_at_once(tmp_pat
     grace period is 600 s: nothing else could end it within the 60 s this test waits."""
     proc = _run_script(tmp_path, """
         import time
-        from scatter_pop import cluster
-        cluster.TERM_GRACE_SECONDS = 600.0
-        with cluster.stop_signals("driver"):
+        from scatter_pop.ensemble import cluster, stop_signals
+        stop_signals.TERM_GRACE_SECONDS = 600.0
+        with stop_signals.stop_signals("driver"):
             try:
                 print("ready", flush=True)
                 time.sleep(60)
@@ -175,19 +175,19 @@ def test_library_callers_keep_keyboardinterrupt_and_handlers_are_restored():
     """connect()'s own handling takes SIGTERM only: Ctrl-C stays Python's KeyboardInterrupt for
     library code (its default SIGINT handler, Python documentation, signal module); a command's
     stop_signals gives both back when it ends without a signal."""
-    from scatter_pop import cluster
+    from scatter_pop.ensemble import cluster, stop_signals
     sigint, sigterm = signal.getsignal(signal.SIGINT), signal.getsignal(signal.SIGTERM)
-    with cluster._sigterm_unwinds():
+    with stop_signals.sigterm_unwinds():
         assert signal.getsignal(signal.SIGINT) is sigint
         assert signal.getsignal(signal.SIGTERM) is not sigterm
-    with cluster.stop_signals("test"):
+    with stop_signals.stop_signals("test"):
         assert signal.getsignal(signal.SIGINT) is not sigint
         assert signal.getsignal(signal.SIGTERM) is not sigterm
     assert signal.getsignal(signal.SIGINT) is sigint and signal.getsignal(signal.SIGTERM) is sigterm
 
 
 def test_a_local_worker_interrupted_by_ctrl_c_integrates_the_system_again(tmp_path):
-    """In a local worker (set up by cluster.dask_setup) REBOUND turns SIGINT during its integration
+    """In a local worker (set up by stop_signals.dask_setup) REBOUND turns SIGINT during its integration
     into KeyboardInterrupt (REBOUND 5.2.2: reb_sigint_handler in its C core, ``raise
     KeyboardInterrupt`` on that status in rebound/simulation.py); integrate_batch integrates the
     system again and the record equals the uninterrupted one."""
@@ -195,16 +195,17 @@ def test_a_local_worker_interrupted_by_ctrl_c_integrates_the_system_again(tmp_pa
     result = tmp_path / "records.nc"
     proc = _run_script(tmp_path, f"""
         import os, signal, threading, time
-        from scatter_pop import cluster, ensemble, integrate
-        from scatter_pop.spec import load_spec
-        from scatter_pop.schema import records_to_dataset
+        from scatter_pop.ensemble import stop_signals, worker as ensemble
+        from scatter_pop.engine import integrate
+        from scatter_pop.spec.reader import load_spec
+        from scatter_pop.store.schema import records_to_dataset
         spec = load_spec({str(spec)!r})
-        cluster.dask_setup(None)                 # as at a local worker's start
-        calls, real = [], integrate.integrate_system
+        stop_signals.dask_setup(None)                 # as at a local worker's start
+        calls, real = [], integrate.integrate_systems
         def counting(*args, **kwargs):
             calls.append(1)
             return real(*args, **kwargs)
-        integrate.integrate_system = counting
+        integrate.integrate_systems = counting
         done = {{}}
         task = threading.Thread(target=lambda: done.update(
             records=ensemble.integrate_batch(spec, (1,), {str(tmp_path)!r})))   # a worker thread

@@ -12,14 +12,14 @@ import scipy.stats
 from handmade import dataset, planet, system, write_run
 from scatter_pop import cli
 from scatter_pop.constants import MJUP_MSUN
-from scatter_pop.initial_architecture import min_spacing, mutual_hill_spacing
-from scatter_pop.simulated import ensemble_star_mass
-from scatter_pop.judge import judge
-from scatter_pop.outcome import EndReason, Fate
-from scatter_pop.proportions import proportion, upper_limit
-from scatter_pop.target import Target, Windows, target_from_flags
-from scatter_pop.target_match import msini_kernel, sin_i_cdf, soft_weight
-from scatter_pop.verdict import render_text, to_dict
+from scatter_pop.target.architecture import min_spacing, mutual_hill_spacing
+from scatter_pop.survey.forward_model import ensemble_star_mass
+from scatter_pop.target.judgement import judge
+from scatter_pop.engine.outcome import EndReason, Fate
+from scatter_pop.target.proportions import proportion, upper_limit
+from scatter_pop.target.planet import Target, Windows, target_from_flags
+from scatter_pop.target.matching import msini_kernel, sin_i_cdf, soft_weight
+from scatter_pop.target.verdict import render_text, to_dict
 
 TARGET = dict(e=0.9, e_err=0.02, a=9.0, a_err=1.5, msini=5.0, msini_err=0.5)
 

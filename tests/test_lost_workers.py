@@ -19,15 +19,15 @@ import numpy as np
 import pytest
 
 import scatter_pop
-from scatter_pop.cli_status import status_lines
-from scatter_pop.cluster import ALLOWED_FAILURES, ClusterConfig, connect
-from scatter_pop.ensemble import FAULT_ENV
-from scatter_pop.initial_conditions import draw_system
-from scatter_pop.integrate import integrate_system
-from scatter_pop.outcome import EndReason
-from scatter_pop.schema import FILL_INT, records_to_dataset
-from scatter_pop.spec import parse_spec
-from scatter_pop.store import RunFolder, read_parts
+from scatter_pop.cli.status import status_lines
+from scatter_pop.ensemble.cluster import ALLOWED_FAILURES, ClusterConfig, connect
+from scatter_pop.ensemble.worker import FAULT_ENV
+from scatter_pop.engine.initial_conditions import draw_system
+from scatter_pop.engine.integrate import integrate_system
+from scatter_pop.engine.outcome import EndReason
+from scatter_pop.store.schema import FILL_INT, records_to_dataset
+from scatter_pop.spec.reader import parse_spec
+from scatter_pop.store.run_folder import RunFolder, read_parts
 
 from ensemble_helpers import assert_physics_equal, part_files, reference, spec_text, wait_for
 

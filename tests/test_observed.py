@@ -1,15 +1,15 @@
-"""Tests of scatter_pop.observed on the shipped open dataset and on malformed catalogues."""
+"""Tests of scatter_pop.survey.catalogue on the shipped open dataset and on malformed catalogues."""
 
 from pathlib import Path
 
 import numpy as np
 import pytest
 
-from scatter_pop import statistics as st
+from scatter_pop.survey import statistics as st
 from scatter_pop.constants import G_AU_YR_MSUN, MJUP_MSUN
-from scatter_pop.cuts import Range, SampleCuts
+from scatter_pop.survey.cuts import Range, SampleCuts
 from scatter_pop.errors import InputError
-from scatter_pop.observed import ColumnMap, load_catalogue
+from scatter_pop.survey.catalogue import ColumnMap, load_catalogue
 
 DATA = Path(__file__).parent / "data" / "observed_rv_giants.csv"
 HEADER = "id,e,e_err_lo,e_err_hi,a_au,period_days,mass_mjup,mass_type,has_inclination,mstar_msun,host_type,discovery_year"

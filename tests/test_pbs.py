@@ -18,8 +18,8 @@ from pathlib import Path
 
 import pytest
 
-from scatter_pop.cluster import connect, job_script
-from scatter_pop.spec import parse_spec
+from scatter_pop.ensemble.cluster import connect, job_script
+from scatter_pop.spec.reader import parse_spec
 from slurm_harness import PARTITION, slurm, squeue_jobs, wait_for_no_jobs  # noqa: F401 (fixture)
 
 TESTS = os.path.dirname(os.path.abspath(__file__))

@@ -1,4 +1,4 @@
-"""Tests of scatter_pop.radial_velocity against Lovis & Fischer (2010) and astropy."""
+"""Tests of scatter_pop.survey.radial_velocity against Lovis & Fischer (2010) and astropy."""
 
 import math
 
@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 import scipy.stats
 
-from scatter_pop import radial_velocity as rv
+from scatter_pop.survey import radial_velocity as rv
 from scatter_pop.constants import GM_SUN_SI, MJUP_MSUN
 
 # IAU 2015 Resolution B3 nominal terrestrial mass parameter GM_E = 3.986004e14 m^3 s^-2

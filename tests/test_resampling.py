@@ -1,10 +1,10 @@
-"""Tests of scatter_pop.resampling: error-bar redraws and the simulated-sample bootstrap."""
+"""Tests of scatter_pop.survey.resampling: error-bar redraws and the simulated-sample bootstrap."""
 
 import numpy as np
 import pytest
 import scipy.stats
 
-from scatter_pop import resampling as rs
+from scatter_pop.survey import resampling as rs
 
 
 def test_split_normal_symmetric_matches_truncated_normal():
@@ -57,7 +57,7 @@ def test_observed_uncertainty_spread_deterministic_and_collapses_without_errors(
 def test_bootstrap_spread_brackets_full_sample_statistic():
     rng = np.random.default_rng(5)
     sim, obs = rng.beta(1, 3, 400), rng.beta(1.3, 3, 120)
-    from scatter_pop.statistics import two_sample
+    from scatter_pop.survey.statistics import two_sample
     full = two_sample(sim, obs, permutations=50, rng=0)
     boot = rs.simulated_bootstrap_spread(sim, obs, draws=40, permutations=30, rng=8)
     assert boot.kind == "simulated_bootstrap" and boot.n_varied == 400

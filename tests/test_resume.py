@@ -18,8 +18,8 @@ import textwrap
 
 import pytest
 
-from scatter_pop.cli_status import status_lines
-from scatter_pop.store import open_ensemble
+from scatter_pop.cli.status import status_lines
+from scatter_pop.store.run_folder import open_ensemble
 
 from ensemble_helpers import (assert_physics_equal, kill_group, part_files, reference, run_cli,
                               start_cli, wait_for, write_spec)
@@ -121,7 +121,7 @@ def test_sigterm_stops_the_run_cleanly_and_it_resumes(tmp_path, ref):
     assert any(line.startswith("state        running since") and f"pid {proc.pid}" in line for line in running)
     assert proc.returncode == 143
     # Either the clean-up finished (the usual case) or it hung and the driver ended itself after
-    # cluster.TERM_GRACE_SECONDS (seen about once in five CI runs on 2 loaded cores): both
+    # stop_signals.TERM_GRACE_SECONDS (seen about once in five CI runs on 2 loaded cores): both
     # keep every finished part and say how to resume; the rerun below checks the result.
     assert ("terminated; finished parts are kept, rerun the same command to resume" in err
             or ("clean-up after SIGTERM took over" in err and "rerun the same command to resume" in err)), err
@@ -142,11 +142,11 @@ def test_sigterm_stops_the_run_cleanly_and_it_resumes(tmp_path, ref):
 
 _DEFERRED = """
 import gc, os, signal, threading, time
-from scatter_pop import cluster
-with cluster._sigterm_unwinds(), cluster.deferred_stop():
+from scatter_pop.ensemble import cluster, stop_signals
+with stop_signals.sigterm_unwinds(), stop_signals.deferred_stop():
     {body}
     print("still working", flush=True)
-    cluster.check_terminated()
+    stop_signals.check_terminated()
     print("not reached", flush=True)
 """
 

@@ -1,4 +1,4 @@
-"""Tests of scatter_pop.simulated: survivors seen through an RV survey."""
+"""Tests of scatter_pop.survey.forward_model: survivors seen through an RV survey."""
 
 import math
 import warnings
@@ -8,13 +8,13 @@ import pytest
 import scipy.stats
 
 from compare_fixtures import planet, random_ensemble, system
-from scatter_pop import radial_velocity as rv
+from scatter_pop.survey import radial_velocity as rv
 from scatter_pop.constants import MJUP_MSUN
-from scatter_pop.cuts import Range, SampleCuts
+from scatter_pop.survey.cuts import Range, SampleCuts
 from scatter_pop.errors import InputError
-from scatter_pop.outcome import EndReason, Fate
-from scatter_pop.schema import records_to_dataset
-from scatter_pop.simulated import (RESCALE_NOTE, RVSurvey, ensemble_star_mass, quality_counts,
+from scatter_pop.engine.outcome import EndReason, Fate
+from scatter_pop.store.schema import records_to_dataset
+from scatter_pop.survey.forward_model import (RESCALE_NOTE, RVSurvey, ensemble_star_mass, quality_counts,
                                    simulated_sample, survivor_table)
 
 

@@ -30,7 +30,7 @@ import pytest
 import xarray as xr
 from distributed import as_completed
 
-from scatter_pop.cluster import ClusterConfig, connect, job_script
+from scatter_pop.ensemble.cluster import ClusterConfig, connect, job_script
 from scatter_pop.errors import InputError
 from slurm_harness import PARTITION, slurm, squeue_jobs, wait_for_no_jobs  # noqa: F401 (fixture)
 
@@ -150,7 +150,7 @@ def test_refused_submission_is_one_line_input_error(slurm, tmp_path):
 
 DRIVER = """
 import sys, time
-from scatter_pop.cluster import ClusterConfig, connect
+from scatter_pop.ensemble.cluster import ClusterConfig, connect
 config = ClusterConfig.from_table({table!r})
 with connect(config) as client:
     client.wait_for_workers(1, timeout=60)
@@ -183,7 +183,7 @@ def test_killed_driver_leaves_no_orphan_job(slurm, tmp_path, sig, deadline):
 
 
 def _physics_equal(a, b) -> list[str]:
-    from scatter_pop.schema import PHYSICS_VARIABLES
+    from scatter_pop.store.schema import PHYSICS_VARIABLES
     differ = []
     for name in PHYSICS_VARIABLES:
         x, y = a[name].values, b[name].values
@@ -193,8 +193,8 @@ def _physics_equal(a, b) -> list[str]:
 
 
 def test_ensemble_on_slurm_equals_local_bit_for_bit(slurm, tmp_path):
-    from scatter_pop.cli import main
-    from scatter_pop.ensemble import run_ensemble
+    from scatter_pop.cli.main import main
+    from scatter_pop.ensemble.driver import run_ensemble
     spec = os.path.join(ROOT, "tests", "data", "tiny.toml")
     cluster_file = tmp_path / "slurm.toml"
     # 1-day walltime: the driver checks it against its worst-case batch time (the wall cap)

@@ -14,9 +14,9 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from scatter_pop.cli import main
+from scatter_pop.cli.main import main
 from scatter_pop.errors import InputError
-from scatter_pop.spec import Distribution, load_spec, parse_spec
+from scatter_pop.spec.reader import Distribution, load_spec, parse_spec
 
 DATA = Path(__file__).parent / "data"
 

@@ -11,7 +11,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from scatter_pop import stability as s
+from scatter_pop.engine import stability as s
 from scatter_pop.constants import MJUP_MSUN, R_JUP_AU
 
 # Saturn/Sun mass ratio 1/3497.9 (JPL planetary constants, GM_Saturn = 3.7931e16 m^3 s^-2; from memory).

@@ -1,4 +1,4 @@
-"""Tests of scatter_pop.statistics against published values and known distributions."""
+"""Tests of scatter_pop.survey.statistics against published values and known distributions."""
 
 import math
 
@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 import scipy.stats
 
-from scatter_pop import statistics as st
+from scatter_pop.survey import statistics as st
 
 # Scholz, F. W. & Stephens, M. A. 1987, JASA 82, 918, worked example (paper smoothness,
 # four laboratories x eight measurements); data as quoted in /work/shared/REFERENCES.md.

@@ -27,11 +27,11 @@ import pytest
 import xarray as xr
 
 from scatter_pop.errors import InputError
-from scatter_pop.initial_conditions import draw_system
-from scatter_pop.outcome import EndReason, Fate, PlanetRecord, SystemRecord
-from scatter_pop.schema import PHYSICS_VARIABLES, VARIABLES, records_to_dataset
-from scatter_pop.spec import parse_spec
-from scatter_pop.store import (RunFolder, atomic_write_netcdf, open_ensemble, prepare_folder,
+from scatter_pop.engine.initial_conditions import draw_system
+from scatter_pop.engine.outcome import EndReason, Fate, PlanetRecord, SystemRecord
+from scatter_pop.store.schema import PHYSICS_VARIABLES, VARIABLES, records_to_dataset
+from scatter_pop.spec.reader import parse_spec
+from scatter_pop.store.run_folder import (RunFolder, atomic_write_netcdf, open_ensemble, prepare_folder,
                                read_parts, versions)
 
 from ensemble_helpers import TINY_TEXT, ensure_program
@@ -224,11 +224,10 @@ def test_replacing_rows_keeps_the_other_systems(tmp_path):
     assert [p.name for p in folder.parts_dir.iterdir()] == [part.path.name]
 
 
-def test_readme_documents_every_variable_with_its_units():
-    """README "Running an ensemble" lists each schema variable with schema.py's units."""
+def test_docs_document_every_variable_with_its_units():
+    """docs/output-schema.md lists each schema variable with schema.py's units."""
     from pathlib import Path
-    text = (Path(__file__).resolve().parents[1] / "README.md").read_text(encoding="utf-8")
-    section = text.split("## Running an ensemble", 1)[1].split("\n## ", 1)[0]
+    section = (Path(__file__).resolve().parents[1] / "docs" / "output-schema.md").read_text(encoding="utf-8")
     documented = {}
     for row in section.splitlines():
         cells = [c.strip() for c in row.strip().strip("|").split("|")]

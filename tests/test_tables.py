@@ -8,10 +8,10 @@ import pytest
 import scipy.stats
 
 from handmade import dataset, planet, system
-from scatter_pop.figure_data import branching_table, comparison_stats_table
-from scatter_pop.outcome import Fate
-from scatter_pop.statistics import two_sample
-from scatter_pop.tables import latex_escape, latex_percent, latex_pvalue, latex_table
+from scatter_pop.paper.figure_data import branching_table, comparison_stats_table
+from scatter_pop.engine.outcome import Fate
+from scatter_pop.survey.statistics import two_sample
+from scatter_pop.paper.latex_tables import latex_escape, latex_percent, latex_pvalue, latex_table
 
 
 def _runs():

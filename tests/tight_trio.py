@@ -8,7 +8,7 @@ not check values.
 
 from __future__ import annotations
 
-from scatter_pop.spec import parse_spec
+from scatter_pop.spec.reader import parse_spec
 
 __all__ = ["tight_trio_spec"]
 

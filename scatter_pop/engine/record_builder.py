@@ -1,0 +1,75 @@
+"""Assemble the outcome record of one system from its initial conditions and ledger.
+
+Pure bookkeeping (no REBOUND): :mod:`scatter_pop.engine.rebound_run` hands over the
+state of every surviving planet as a :class:`~scatter_pop.engine.ledger.FateEntry`
+(astrocentric elements at the end) together with the end-of-run totals.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from scatter_pop.engine.initial_conditions import InitialSystem
+from scatter_pop.engine.ledger import Ledger
+from scatter_pop.engine.outcome import EndReason, Fate, PlanetRecord, SystemRecord
+
+__all__ = ["build_record", "planet_name", "planet_index"]
+
+
+def planet_name(i: int) -> str:
+    """Name of planet i (initial order, innermost first) in the simulation."""
+    return f"p{i}"
+
+
+def planet_index(name: str) -> int:
+    """Initial index of the planet called ``name``."""
+    return int(name[1:])
+
+
+def build_record(initial: InitialSystem, ledger: Ledger, survivors: dict, *, reason: EndReason, t_end: float,
+                 energy: float, angmom, steps: int, integrator: str, circularisation_q: float) -> SystemRecord:
+    """The SystemRecord of a finished (or capped) integration.
+
+    Parameters
+    ----------
+    initial : InitialSystem
+    ledger : Ledger
+        Fates of removed planets, removed energy and angular momentum, timings.
+    survivors : dict
+        Planet name -> FateEntry (fate SURVIVED) with its final astrocentric state.
+    reason : EndReason
+    t_end : float
+        Time the integration stopped (yr).
+    energy : float
+        Total energy now (M_sun AU^2 yr^-2).
+    angmom : array (3,)
+        Total angular momentum now (M_sun AU^2 yr^-1).
+    steps : int
+        Integrator steps taken.
+    integrator : str
+    circularisation_q : float
+        Survivors with pericentre below this (AU) are flagged as tidal candidates.
+    """
+    planets = []
+    for i in range(initial.count):
+        name = planet_name(i)
+        state = survivors.get(name) or ledger.fates[name]
+        alive = name in survivors
+        planets.append(PlanetRecord(
+            mass_initial=initial.mass[i], a_initial=initial.a[i], e_initial=initial.e[i],
+            inc_initial=initial.inc[i], radius_initial=initial.radius[i],
+            mass_final=state.mass, a_final=state.a, e_final=state.e, inc_final=state.inc, q_final=state.q,
+            radius_final=state.radius, omega_final=state.omega, node_final=state.node, fate=Fate(state.fate),
+            t_fate=math.nan if alive else state.t, merged_into=state.merged_into,
+            tidal_candidate=bool(alive and state.q < circularisation_q)))
+    l_now = np.asarray(angmom, dtype=float) + np.asarray(ledger.angmom_removed)
+    l0 = np.asarray(ledger.l0)
+    return SystemRecord(
+        index=initial.index, seed=initial.seed, planets=tuple(planets), t_end=float(t_end), end_reason=reason,
+        t_first_encounter=ledger.t_first_encounter,
+        energy_error=float((energy + ledger.energy_removed - ledger.e0) / abs(ledger.e0)),
+        angmom_error=float(np.linalg.norm(l_now - l0) / ledger.l_scale),
+        steps=int(steps), wall_seconds=ledger.wall_seconds, integrator=integrator)
+

@@ -1,0 +1,173 @@
+"""The ensemble dataset: names, dtypes, units and CF attributes, defined once.
+
+Dimensions
+----------
+``system``  one entry per integrated system (coordinate: the system index);
+``planet``  planets of a system in their initial order, innermost first
+            (coordinate 0..N-1).
+
+Every variable carries ``units`` and ``long_name``; categorical variables are
+int8 codes with CF ``flag_values`` / ``flag_meanings``.  Everything a reader
+needs to interpret a file is in this module; :func:`records_to_dataset` is the
+only place that builds a dataset from outcome records.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+import xarray as xr
+
+from scatter_pop.engine.outcome import EndReason, Fate, NO_PLANET, SystemRecord
+
+__all__ = [
+    "Var", "VARIABLES", "PLANET_VARIABLES", "SYSTEM_VARIABLES", "PHYSICS_VARIABLES",
+    "ENERGY_TOLERANCE_DEFAULT", "FILL_INT", "records_to_dataset", "validate_dataset",
+    "quality_mask", "survivor_mask",
+]
+
+FILL_INT = -1                       # fill of int8 codes for systems with no result
+ENERGY_TOLERANCE_DEFAULT = 1e-4     # |dE/E| above this: flagged, left out of statistics
+
+
+@dataclass(frozen=True)
+class Var:
+    name: str
+    dims: tuple[str, ...]
+    dtype: str
+    units: str
+    long_name: str
+    flags: type | None = None       # IntEnum whose codes the variable holds
+    physics: bool = True            # part of the bit-for-bit reproducibility promise
+
+
+P = ("system", "planet")
+S = ("system",)
+
+VARIABLES: tuple[Var, ...] = (
+    # per planet
+    Var("mass_initial", P, "f8", "Msun", "initial planet mass"),
+    Var("a_initial", P, "f8", "au", "initial astrocentric semi-major axis"),
+    Var("e_initial", P, "f8", "1", "initial eccentricity"),
+    Var("inc_initial", P, "f8", "rad", "initial inclination to the reference plane"),
+    Var("radius_initial", P, "f8", "au", "initial physical planet radius"),
+    Var("mass_final", P, "f8", "Msun", "planet mass at the end or at its fate"),
+    Var("a_final", P, "f8", "au", "astrocentric semi-major axis at the end or at its fate (negative if unbound)"),
+    Var("e_final", P, "f8", "1", "eccentricity at the end or at its fate"),
+    Var("inc_final", P, "f8", "rad", "inclination to the initial reference plane at the end or at its fate"),
+    Var("q_final", P, "f8", "au", "pericentre distance a(1-e) at the end or at its fate"),
+    Var("radius_final", P, "f8", "au", "physical planet radius at the end or at its fate"),
+    Var("omega_final", P, "f8", "rad", "argument of pericentre at the end or at its fate"),
+    Var("node_final", P, "f8", "rad", "longitude of the ascending node at the end or at its fate"),
+    Var("fate", P, "i1", "1", "fate of the planet", flags=Fate),
+    Var("t_fate", P, "f8", "yr", "time of the planet's fate (NaN for survivors)"),
+    Var("merged_into", P, "i1", "1", "index of the planet this one merged into (-1: none)"),
+    Var("tidal_candidate", P, "i1", "1",
+        "survivor whose pericentre is below the circularisation threshold (1) or not (0)"),
+    # per system
+    Var("seed", S, "u8", "1", "64-bit seed of the system's initial-condition draws"),
+    Var("n_survivors", S, "i1", "1", "number of surviving planets"),
+    Var("n_ejected", S, "i1", "1", "number of ejected planets"),
+    Var("n_merged", S, "i1", "1", "number of planet-planet mergers"),
+    Var("n_star", S, "i1", "1", "number of planets lost to the star (collision or tidal disruption)"),
+    Var("t_first_encounter", S, "f8", "yr", "time of the first separation below one mutual Hill radius"),
+    Var("t_end", S, "f8", "yr", "time the integration stopped"),
+    Var("end_reason", S, "i1", "1", "rule that ended the integration", flags=EndReason),
+    Var("energy_error", S, "f8", "1", "relative energy error, corrected for mergers and removals"),
+    Var("angmom_error", S, "f8", "1", "relative angular-momentum error, corrected for mergers and removals"),
+    Var("steps", S, "i8", "1", "integrator steps taken"),
+    Var("wall_seconds", S, "f8", "s", "wall-clock time of the integration", physics=False),
+    Var("attempts", S, "i1", "1", "times the system was started (worker deaths retried)", physics=False),
+)
+
+VAR = {v.name: v for v in VARIABLES}
+PLANET_VARIABLES = tuple(v.name for v in VARIABLES if v.dims == P)
+SYSTEM_VARIABLES = tuple(v.name for v in VARIABLES if v.dims == S)
+PHYSICS_VARIABLES = tuple(v.name for v in VARIABLES if v.physics)
+
+
+def _attrs(v: Var) -> dict:
+    attrs = {"units": v.units, "long_name": v.long_name}
+    if v.flags is not None:
+        attrs["flag_values"] = np.array([int(c) for c in v.flags], dtype=v.dtype)
+        attrs["flag_meanings"] = " ".join(c.word for c in v.flags)
+    return attrs
+
+
+def _fill(dtype: str):
+    return math.nan if dtype == "f8" else (0 if dtype == "u8" else FILL_INT)
+
+
+def records_to_dataset(records: list[SystemRecord], n_planets: int) -> xr.Dataset:
+    """Build the ensemble dataset from outcome records (any order; sorted by index).
+
+    Parameters
+    ----------
+    records : list of SystemRecord
+    n_planets : int
+        Size of the ``planet`` dimension (the spec's planet count).
+    """
+    records = sorted(records, key=lambda r: r.index)
+    ns = len(records)
+    data = {v.name: np.full(((ns, n_planets) if v.dims == P else ns), _fill(v.dtype), dtype=v.dtype)
+            for v in VARIABLES}
+    for i, r in enumerate(records):
+        for j, p in enumerate(r.planets):
+            for name in PLANET_VARIABLES:
+                value = getattr(p, name)
+                data[name][i, j] = int(value) if VAR[name].dtype == "i1" else value
+        failed = r.end_reason == EndReason.FAILED
+        if failed:                      # no outcome: fates unknown, not "survived"
+            data["fate"][i, :] = FILL_INT
+        data["seed"][i] = r.seed
+        data["end_reason"][i] = int(r.end_reason)
+        for name, fates in (("n_survivors", (Fate.SURVIVED,)), ("n_ejected", (Fate.EJECTED,)),
+                            ("n_merged", (Fate.MERGED,)), ("n_star", (Fate.HIT_STAR, Fate.DISRUPTED))):
+            data[name][i] = FILL_INT if failed else sum(r.count(f) for f in fates)
+        for name in ("t_first_encounter", "t_end", "energy_error", "angmom_error", "steps",
+                     "wall_seconds", "attempts"):
+            data[name][i] = getattr(r, name)
+    ds = xr.Dataset(
+        {v.name: (v.dims, data[v.name], _attrs(v)) for v in VARIABLES},
+        coords={
+            "system": ("system", np.array([r.index for r in records], dtype="i8"),
+                       {"long_name": "system index within the run", "units": "1"}),
+            "planet": ("planet", np.arange(n_planets, dtype="i1"),
+                       {"long_name": "planet index, innermost first at the start", "units": "1"}),
+        },
+    )
+    ds.attrs["Conventions"] = "CF-1.10"
+    return ds
+
+
+def validate_dataset(ds: xr.Dataset) -> None:
+    """Raise ValueError if ``ds`` lacks a schema variable or has it with other dims/units."""
+    for v in VARIABLES:
+        if v.name not in ds:
+            raise ValueError(f"dataset lacks variable {v.name!r}")
+        if tuple(ds[v.name].dims) != v.dims:
+            raise ValueError(f"variable {v.name!r} has dims {ds[v.name].dims}, expected {v.dims}")
+        if ds[v.name].attrs.get("units") != v.units:
+            raise ValueError(f"variable {v.name!r} has units {ds[v.name].attrs.get('units')!r}, expected {v.units!r}")
+
+
+def quality_mask(ds: xr.Dataset, energy_tolerance: float = ENERGY_TOLERANCE_DEFAULT,
+                 include_capped: bool = False) -> xr.DataArray:
+    """Systems that enter the statistics by default (boolean over ``system``).
+
+    Left out: failed systems, systems whose corrected |dE/E| exceeds
+    ``energy_tolerance``, and (unless ``include_capped``) systems stopped by
+    the wall-clock cap before their end time.
+    """
+    reason = ds["end_reason"]
+    ok = (reason != int(EndReason.FAILED)) & (np.abs(ds["energy_error"]) <= energy_tolerance)
+    if not include_capped:
+        ok = ok & (reason != int(EndReason.CAPPED))
+    return ok
+
+
+def survivor_mask(ds: xr.Dataset, **quality) -> xr.DataArray:
+    """Surviving planets of the systems selected by :func:`quality_mask` (system x planet)."""
+    return (ds["fate"] == int(Fate.SURVIVED)) & quality_mask(ds, **quality)
