@@ -25,7 +25,7 @@ __all__ = [
     "EnsembleSpec", "load_spec", "parse_spec", "INTEGRATORS",
 ]
 
-INTEGRATORS = ("ias15", "trace", "mercurius", "bs")
+INTEGRATORS = ("ias15", "trace", "mercurius", "bs", "taylor")
 DISTRIBUTIONS = ("fixed", "uniform", "log-uniform", "power-law")
 
 
@@ -102,6 +102,7 @@ class IntegrationSpec:
     check_orbits: float = 100.0            # initial inner orbits between stopping checks
     stop_when_settled: bool = True         # False: reference mode, run to the end time
     hill_margin: float = 1.01              # Hill-stable pair needs LHS/RHS >= this (see README)
+    taylor_tolerance: float = 1e-13        # heyoka tolerance (integrator taylor; analysis/bench_taylor.py)
 
     def end_time_years(self, inner_period: float) -> float:
         """End time in years given the initial inner period (yr)."""
@@ -330,6 +331,8 @@ def _integration(table) -> IntegrationSpec:
                            allowed="in initial inner orbits, > 0"),
         stop_when_settled=s.get("stop_when_settled", bool, d.stop_when_settled),
         hill_margin=s.get("hill_margin", float, d.hill_margin, check=lambda x: x >= 1, allowed=">= 1"),
+        taylor_tolerance=s.get("taylor_tolerance", float, d.taylor_tolerance, check=lambda x: 0 < x < 1,
+                               allowed="> 0 and < 1"),
     )
     s.finish(set(IntegrationSpec.__dataclass_fields__))
     return spec
