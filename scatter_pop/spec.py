@@ -22,10 +22,11 @@ from .errors import InputError
 
 __all__ = [
     "Distribution", "RunSpec", "StarSpec", "PlanetsSpec", "IntegrationSpec", "OutcomeSpec",
-    "EnsembleSpec", "load_spec", "parse_spec", "INTEGRATORS",
+    "EnsembleSpec", "load_spec", "parse_spec", "INTEGRATORS", "BATCH_INTEGRATORS",
 ]
 
-INTEGRATORS = ("ias15", "trace", "mercurius", "bs", "taylor")
+INTEGRATORS = ("ias15", "trace", "mercurius", "bs")      # REBOUND, one system per call
+BATCH_INTEGRATORS = ("taylor",)                          # heyoka batch mode (scatter_pop.taylor_engine)
 DISTRIBUTIONS = ("fixed", "uniform", "log-uniform", "power-law")
 
 
@@ -309,8 +310,8 @@ def _planets(table) -> PlanetsSpec:
 def _integration(table) -> IntegrationSpec:
     s = _Section(table, "integration")
     d = IntegrationSpec()
-    integrator = s.get("integrator", str, d.integrator, check=lambda x: x in INTEGRATORS,
-                       allowed="one of " + ", ".join(INTEGRATORS))
+    integrator = s.get("integrator", str, d.integrator, check=lambda x: x in INTEGRATORS + BATCH_INTEGRATORS,
+                       allowed="one of " + ", ".join(INTEGRATORS + BATCH_INTEGRATORS))
     if s.has("end_time") == s.has("end_orbits"):
         raise InputError("integration.end_time / integration.end_orbits: give exactly one "
                          "(end_time in yr, or end_orbits in initial inner orbits)")
