@@ -45,8 +45,7 @@ def taylor_path(spec, tol, reference, lanes):
     integ = replace(spec.integration, integrator="taylor", taylor_tolerance=tol)
     this = replace(spec, integration=integ)
     for n in (2, 3, 4):
-        for hill in (True, False):
-            lane_integrator(n, lanes, tol, hill)       # compile outside the timing
+        lane_integrator(n, lanes, tol)                 # compile outside the timing
     c0 = time.process_time()
     recs = integrate_systems_taylor(this, range(spec.run.systems), reference=reference, lanes=lanes)
     cpu = (time.process_time() - c0) / len(recs)
@@ -79,7 +78,7 @@ def main(argv):
     print(f"\n{'path':<14} {'CPU s/system':>12} {'x IAS15':>8} {'med |dE/E|':>10}")
     for label, entry in summary.items():
         print(f"{label:<14} {entry['cpu_per_system']:12.4f} {entry['speedup']:8.2f} {entry['energy_error_median']:10.1e}")
-    print("\ncompile seconds:", {f"{k[0]} bodies, {k[1]} lanes, tol {k[2]:.0e}, hill {k[3]}": round(v, 2)
+    print("\ncompile seconds:", {f"{k[0]} bodies, {k[1]} lanes, tol {k[2]:.0e}": round(v, 2)
                                  for k, v in COMPILE_SECONDS.items()})
     with open(f"analysis/bench_taylor_{systems}x{end_time:g}.json", "w") as fh:
         json.dump({"summary": summary, "compile_seconds": {repr(k): v for k, v in COMPILE_SECONDS.items()}},

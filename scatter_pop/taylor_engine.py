@@ -300,8 +300,8 @@ class _System:
 class _Pool:
     """The lanes of one compiled integrator and the queue of systems waiting for them."""
 
-    def __init__(self, n, lanes, tol, hill):
-        self.li = lane_integrator(n, lanes, tol, hill)
+    def __init__(self, n, lanes, tol):
+        self.li = lane_integrator(n, lanes, tol)
         self.slots: list = [None] * lanes
         self.queue: deque = deque()
 
@@ -312,12 +312,12 @@ class _Pool:
 class _Driver:
     def __init__(self, lanes, tol):
         self.lanes, self.tol = lanes, tol
-        self.pools: dict[tuple, _Pool] = {}
+        self.pools: dict[int, _Pool] = {}
 
-    def pool(self, n, hill) -> _Pool:
-        if (n, hill) not in self.pools:
-            self.pools[n, hill] = _Pool(n, self.lanes, self.tol, hill)
-        return self.pools[n, hill]
+    def pool(self, n) -> _Pool:
+        if n not in self.pools:
+            self.pools[n] = _Pool(n, self.lanes, self.tol)
+        return self.pools[n]
 
     def run(self, systems) -> None:
         for s in systems:
@@ -326,7 +326,7 @@ class _Driver:
             busy = [p for p in self.pools.values() if p.load()]
             if not busy:
                 return
-            self.round(max(busy, key=lambda p: (p.load(), p.li.n, p.li.hill)))
+            self.round(max(busy, key=lambda p: (p.load(), p.li.n)))
 
     def start(self, s: _System) -> None:
         """Queue a system in its pool, or finish it when nothing is left to integrate."""
@@ -337,7 +337,7 @@ class _Driver:
             if reason is not None:
                 s.finish(reason)
                 return
-        self.pool(s.n, not s.ledger.encounter_found).queue.append(s)
+        self.pool(s.n).queue.append(s)
 
     # ------------------------------------------------------------------ one round of one pool
     def round(self, pool: _Pool) -> None:
@@ -374,9 +374,6 @@ class _Driver:
                 continue
             if li.ta.time[lane] >= targets[lane]:
                 self.chunk_end(pool, lane, s)
-            if pool.slots[lane] is s and li.hill and s.ledger.encounter_found:
-                self.leave(pool, lane, s)          # on to the integrator without first-encounter events
-                self.start(s)
 
     def leave(self, pool: _Pool, lane: int, s: _System, t=None) -> None:
         """Take system s out of its lane, its state at time t (dense output) or at the lane's time."""
@@ -395,6 +392,9 @@ class _Driver:
             if slot.kind == "hill":
                 if not s.ledger.encounter_found:
                     s.ledger.t_first_encounter = float(t)
+                    for other in li.slots:
+                        if other.kind == "hill":
+                            li.set_par(lane, other.par, 0.0)
                 continue
             x, v = li.dense(lane, t)
             m = s.m
@@ -440,7 +440,7 @@ class _Driver:
             s.finish(reason)
         elif pool.slots[lane] is None:
             self.start(s)
-        elif li.hill:
+        else:
             s._encounter_now()                     # mutual Hill radii from the orbit sizes now
             pars = s.pars(li.slots)
             for slot in li.slots:

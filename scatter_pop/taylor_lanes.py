@@ -22,11 +22,8 @@ escape    star, planet k                D_eject     outward: ejection if unbound
 heyoka's step-size control sees the event functions too (measured: an ejection event d^2 - D^2 with
 D = 1000 AU loosened the steps and raised the energy error of the benchmark systems from 6e-13 to
 6e-8, and changing a parameter used only in an event changed the lane's trajectory).  Every event
-function is therefore multiplied by EVENT_SCALE = 1e-9: the energy error is back at the event-free
-level and event-only parameters no longer change the trajectory (tested).  The trajectory is not
-bitwise that of an integrator compiled without events (shared subexpressions change the rounding),
-so results are reproducible for one event set; a system whose first encounter is found moves to
-the integrator without ``hill`` events (events cost: 15 events made a 4-body step ~1.5-2x dearer).
+function is therefore multiplied by EVENT_SCALE = 1e-9: the trajectories are then bitwise those of the
+same integrator without events, and event-only parameters can change freely.
 
 The callbacks only record (lane, time, slot); every kind but ``hill`` also asks the step callback
 of ``propagate_until`` to stop the call after the step (all lanes stop at the end of a normal step;
@@ -52,7 +49,7 @@ __all__ = ["LaneIntegrator", "lane_integrator", "EventSlot", "COMPILE_SECONDS", 
 STOPPING_KINDS = ("contact", "star", "tidal", "escape")
 EVENT_SCALE = 1e-9             # event functions scaled so that they never enter the step-size control
 TARGET_CHECK_STEPS = 16        # the step callback looks for lanes at their target every this many steps
-COMPILE_SECONDS: dict = {}     # (bodies, lanes, tolerance, hill) -> seconds the compilation took
+COMPILE_SECONDS: dict = {}     # (bodies, lanes, tolerance) -> seconds the compilation took
 _CACHE = threading.local()
 
 
@@ -80,16 +77,16 @@ class _Recorder:
 class LaneIntegrator:
     """A compiled ``taylor_adaptive_batch`` for ``n`` bodies in ``lanes`` lanes at tolerance ``tol``."""
 
-    def __init__(self, n: int, lanes: int, tol: float, hill: bool = True):
+    def __init__(self, n: int, lanes: int, tol: float):
         import heyoka as hy
-        self.n, self.lanes, self.tol, self.hill = int(n), int(lanes), float(tol), bool(hill)
+        self.n, self.lanes, self.tol = int(n), int(lanes), float(tol)
         self.recorder = _Recorder()
         eqs = hy.model.nbody(self.n, masses=[hy.par[k] for k in range(self.n)], Gconst=G_AU_YR_MSUN)
         var = [lhs for lhs, _ in eqs]
         self.slots: list[EventSlot] = []
         for i in range(1, self.n):
             for j in range(i + 1, self.n):
-                self.slots += [EventSlot("contact", i, j, 0)] + ([EventSlot("hill", i, j, 0)] if hill else [])
+                self.slots += [EventSlot("contact", i, j, 0), EventSlot("hill", i, j, 0)]
         for k in range(1, self.n):
             self.slots += [EventSlot(kind, 0, k, 0) for kind in ("star", "tidal", "escape")]
         self.slots = [EventSlot(s.kind, s.i, s.j, self.n + q) for q, s in enumerate(self.slots)]
@@ -105,7 +102,7 @@ class LaneIntegrator:
         start = time.perf_counter()
         self.ta = hy.taylor_adaptive_batch(eqs, np.zeros((6 * self.n, self.lanes)), tol=self.tol,
                                            pars=np.zeros((self.n_par, self.lanes)), nt_events=events)
-        COMPILE_SECONDS[(self.n, self.lanes, self.tol, self.hill)] = time.perf_counter() - start
+        COMPILE_SECONDS[(self.n, self.lanes, self.tol)] = time.perf_counter() - start
         self._ok = {hy.taylor_outcome.time_limit, hy.taylor_outcome.cb_stop, hy.taylor_outcome.success}
 
     def _event_callback(self, q: int, stops: bool):
@@ -166,13 +163,12 @@ class LaneIntegrator:
         self.ta.pars[index, lane] = value
 
 
-def lane_integrator(n: int, lanes: int, tol: float, hill: bool = True) -> LaneIntegrator:
-    """The compiled integrator for (n bodies, lanes, tol, with first-encounter events or not) of this
-    thread (compiled on first use)."""
+def lane_integrator(n: int, lanes: int, tol: float) -> LaneIntegrator:
+    """The compiled integrator for (n bodies, lanes, tol) of this thread (compiled on first use)."""
     cache = getattr(_CACHE, "integrators", None)
     if cache is None:
         cache = _CACHE.integrators = {}
-    key = (int(n), int(lanes), float(tol), bool(hill))
+    key = (int(n), int(lanes), float(tol))
     if key not in cache:
         cache[key] = LaneIntegrator(*key)
     return cache[key]

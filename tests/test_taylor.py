@@ -148,7 +148,7 @@ def test_checkpoint_of_another_system_is_refused(tmp_path):
 
 def test_event_only_parameters_leave_the_trajectory_unchanged():
     # the scaled event functions keep out of heyoka's step-size control (see taylor_lanes), so
-    # another first-encounter radius (or 0: off) must not move the lane at all
+    # switching the first-encounter event off (its parameter to 0) must not move the lane at all
     li = lane_integrator(3, 8, 1e-13)
     s = _System(pair(2.0, (0.0, 2.0)), IntegrationSpec(end_time=10.0), OutcomeSpec(), None, True)
     hill = [slot.par for slot in li.slots if slot.kind == "hill"][0]
