@@ -1,7 +1,7 @@
 """A real single-node SLURM for the tests of the HPC path (helper module, not a test file).
 
 The harness follows the set-up measured on these machines
-(``/work/shared/notes/dask-and-slurm.md`` and ``slurm.conf.example`` beside it):
+(``../shared/notes/dask-and-slurm.md`` and ``slurm.conf.example`` beside it):
 
 1. install the Debian packages ``slurm-wlm munge slurm-client slurm-wlm-torque`` with apt-get
    unless their programs are already present (``apt-get update`` first only if the install fails);

@@ -1,6 +1,6 @@
 """Stability criteria and scale numbers against published and derived values.
 
-Check values are those listed in /work/shared/REFERENCES.md ("derived" = computed
+Check values are those listed in ../shared/REFERENCES.md ("derived" = computed
 from the quoted formula, a check of our implementation of it).
 """
 

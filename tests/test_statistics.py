@@ -9,7 +9,7 @@ import scipy.stats
 from scatter_pop.survey import statistics as st
 
 # Scholz, F. W. & Stephens, M. A. 1987, JASA 82, 918, worked example (paper smoothness,
-# four laboratories x eight measurements); data as quoted in /work/shared/REFERENCES.md.
+# four laboratories x eight measurements); data as quoted in ../shared/REFERENCES.md.
 SS87 = [
     [38.7, 41.5, 43.8, 44.5, 45.5, 46.0, 47.7, 58.0],
     [39.2, 39.3, 39.7, 41.4, 41.8, 42.9, 43.3, 45.8],
