@@ -19,7 +19,7 @@ test: $(STAMP)
 	$(BIN)/python -m pytest -q
 
 demo: $(STAMP)
-	$(BIN)/python -m scatter_pop.demo runs/demo.toml --out runs/demo_out
+	$(BIN)/python -m scatter_pop.cli.demo runs/demo.toml --out runs/demo_out
 
 clean-demo:
 	rm -rf runs/demo_out

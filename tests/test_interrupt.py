@@ -123,7 +123,7 @@ def test_ctrl_c_while_a_lock_is_held_waits_for_the_lock_to_be_released(tmp_path)
     again, waiting forever."""
     proc = _run_script(tmp_path, """
         import os, signal, threading, time
-        from scatter_pop.ensemble import cluster, stop_signals
+        from scatter_pop.ensemble import stop_signals
         with stop_signals.stop_signals("driver"), stop_signals.deferred_stop():
             lock = threading.Lock()
             lock.acquire()
@@ -147,7 +147,7 @@ def test_ctrl_c_again_during_a_hanging_clean_up_ends_the_process_at_once(tmp_pat
     grace period is 600 s: nothing else could end it within the 60 s this test waits."""
     proc = _run_script(tmp_path, """
         import time
-        from scatter_pop.ensemble import cluster, stop_signals
+        from scatter_pop.ensemble import stop_signals
         stop_signals.TERM_GRACE_SECONDS = 600.0
         with stop_signals.stop_signals("driver"):
             try:
@@ -175,7 +175,7 @@ def test_library_callers_keep_keyboardinterrupt_and_handlers_are_restored():
     """connect()'s own handling takes SIGTERM only: Ctrl-C stays Python's KeyboardInterrupt for
     library code (its default SIGINT handler, Python documentation, signal module); a command's
     stop_signals gives both back when it ends without a signal."""
-    from scatter_pop.ensemble import cluster, stop_signals
+    from scatter_pop.ensemble import stop_signals
     sigint, sigterm = signal.getsignal(signal.SIGINT), signal.getsignal(signal.SIGTERM)
     with stop_signals.sigterm_unwinds():
         assert signal.getsignal(signal.SIGINT) is sigint

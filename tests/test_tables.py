@@ -4,7 +4,6 @@ comparison, escaping, p-values at the permutation floor."""
 import re
 
 import numpy as np
-import pytest
 import scipy.stats
 
 from handmade import dataset, planet, system

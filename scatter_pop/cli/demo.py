@@ -33,7 +33,7 @@ from scatter_pop.errors import InputError
 
 __all__ = ["main", "load_demo_target", "run_demo", "DEFAULT_OBSERVED"]
 
-DEFAULT_OBSERVED = Path(__file__).resolve().parent.parent / "tests" / "data" / "observed_rv_giants.csv"
+DEFAULT_OBSERVED = Path(__file__).resolve().parents[2] / "tests" / "data" / "observed_rv_giants.csv"
 _TARGET_KEYS = ("name", "e", "e_err", "a", "a_err", "msini", "msini_err", "mstar", "invented")
 _SURVEY_KEYS = ("k_min", "baseline")
 

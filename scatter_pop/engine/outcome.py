@@ -8,7 +8,7 @@ angles in radians.  Orbital elements are astrocentric (relative to the star).
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from enum import IntEnum
 
 __all__ = ["Fate", "EndReason", "PlanetRecord", "SystemRecord", "NO_PLANET"]

@@ -22,21 +22,19 @@ adds what a long run on an allocation needs:
 
 from __future__ import annotations
 
-import functools
 import os
-import signal
 import sys
-import threading
 import time
 import warnings
-from contextlib import AbstractContextManager, contextmanager
+from contextlib import contextmanager
 from pathlib import Path
 from typing import TYPE_CHECKING, Iterator
 
 from scatter_pop.spec.cluster_table import (BATCH, KINDS, ClusterConfig, WalltimeWarning, toml_repr, apply_overrides,
                              check_walltime, load_cluster_file, walltime_seconds, worker_lifetime)
 from scatter_pop.errors import InputError
-from scatter_pop.ensemble.stop_signals import deferred_stop, sigterm_unwinds, stop_requested
+from scatter_pop.ensemble.stop_signals import (check_terminated, deferred_stop, sigterm_unwinds,
+                                               silence_worker_stderr, stop_requested)
 
 if TYPE_CHECKING:
     import distributed
@@ -64,7 +62,7 @@ def configure_dask() -> None:
 
 def _source_root() -> str | None:
     """The folder holding the scatter_pop package if it is a source checkout, else None."""
-    root = Path(__file__).resolve().parent.parent
+    root = Path(__file__).resolve().parents[2]
     return None if root.name in ("site-packages", "dist-packages") else str(root)
 
 
@@ -155,7 +153,7 @@ def _close(client, cluster, kind: str) -> None:
         if client is not None:
             if terminating and kind == "local":
                 try:
-                    client.run(_silence_stderr, on_error="ignore")
+                    client.run(silence_worker_stderr, on_error="ignore")
                 except (OSError, RuntimeError):   # scheduler already gone: nothing left to quiet
                     pass
             client.close()

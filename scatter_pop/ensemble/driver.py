@@ -29,9 +29,7 @@ from __future__ import annotations
 
 import dataclasses
 import importlib.util
-import math
 import os
-import signal
 import socket
 import time
 import traceback
@@ -43,13 +41,13 @@ from pathlib import Path
 import xarray as xr
 
 from scatter_pop.errors import InputError
-from scatter_pop.engine.outcome import EndReason, Fate, PlanetRecord, SystemRecord
+from scatter_pop.engine.outcome import EndReason, SystemRecord
 from scatter_pop.ensemble.plan import Plan, Task, make_plan
 from scatter_pop.ensemble.progress import Progress
 from scatter_pop.ensemble.worker import deaths_on_scheduler, failed_record, integrate_batch
 from scatter_pop.store.schema import records_to_dataset
 from scatter_pop.spec.reader import EnsembleSpec, load_spec, parse_spec
-from scatter_pop.store.run_folder import RunFolder, atomic_write_text, open_ensemble, prepare_folder
+from scatter_pop.store.run_folder import atomic_write_text, open_ensemble, prepare_folder
 
 __all__ = ["run_ensemble", "EnsembleRun", "default_out"]
 
@@ -126,7 +124,7 @@ class EnsembleRun:
 
     def run(self) -> xr.Dataset:
         """Compute what the folder lacks, gather ensemble.nc and return it (loaded)."""
-        from scatter_pop.ensemble.cluster import check_terminated, deferred_stop
+        from scatter_pop.ensemble.stop_signals import check_terminated, deferred_stop
         # A stop signal (SIGTERM inside connect(); SIGINT too under stop_signals.stop_signals, as in
         # `scatter-pop run`) is acted upon only between whole steps, never while a part file, a
         # merged part or ensemble.nc is being written
@@ -156,7 +154,8 @@ class EnsembleRun:
         if self.client is not None:
             self._drive(self.client, plan)
             return
-        from scatter_pop.ensemble.cluster import connect, deferred_stop
+        from scatter_pop.ensemble.cluster import connect
+        from scatter_pop.ensemble.stop_signals import deferred_stop
         config = self.cluster if self.cluster is not None else self.spec.cluster
         widest = max([plan.batch_size, 1] + [len(t.indices) for t in plan.redo])
         longest = self.spec.integration.wall_seconds_max * widest
@@ -275,7 +274,7 @@ def _finished(done_iter):
     :func:`scatter_pop.ensemble.stop_signals.stop_signals`), deferred while the driver writes parts, is raised
     here, between two results, within ``FINISHED_POLL_SECONDS``.
     """
-    from scatter_pop.ensemble.cluster import check_terminated
+    from scatter_pop.ensemble.stop_signals import check_terminated
     while True:
         check_terminated()
         if done_iter.has_ready():

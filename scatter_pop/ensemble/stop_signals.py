@@ -267,7 +267,7 @@ def worker_ignores_sigint() -> bool:
     return _WORKER_IGNORES_SIGINT
 
 
-def _silence_stderr() -> None:
+def silence_worker_stderr() -> None:
     """Runs on each local worker after a stop signal: its stderr (the user's terminal, inherited from the
     driver) goes to /dev/null, so the warnings and tracebacks of a worker closing in the middle of
     a task do not reach the user."""

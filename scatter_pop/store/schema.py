@@ -20,7 +20,7 @@ from dataclasses import dataclass
 import numpy as np
 import xarray as xr
 
-from scatter_pop.engine.outcome import EndReason, Fate, NO_PLANET, SystemRecord
+from scatter_pop.engine.outcome import EndReason, Fate, SystemRecord
 
 __all__ = [
     "Var", "VARIABLES", "PLANET_VARIABLES", "SYSTEM_VARIABLES", "PHYSICS_VARIABLES",
