@@ -338,7 +338,7 @@ class SlurmHarness:
 _shared: dict = {"harness": None, "users": 0, "error": None}
 
 
-def _unavailable(message: str) -> None:
+def unavailable(message: str) -> None:
     if os.environ.get("CI"):
         pytest.fail(f"real SLURM unavailable: {message}", pytrace=False)
     pytest.skip(f"real SLURM unavailable (CI unset, so skipping): {message}")
@@ -348,14 +348,14 @@ def _unavailable(message: str) -> None:
 def slurm(tmp_path_factory):
     """A running single-node SLURM (:class:`SlurmHarness`); fails in CI if unavailable."""
     if _shared["error"] is not None:
-        _unavailable(_shared["error"])
+        unavailable(_shared["error"])
     if _shared["harness"] is None:
         harness = SlurmHarness(tmp_path_factory.mktemp("slurm"))
         try:
             harness.start()
         except (HarnessError, OSError, subprocess.SubprocessError) as exc:
             _shared["error"] = str(exc)
-            _unavailable(str(exc))
+            unavailable(str(exc))
         _shared["harness"] = harness
     _shared["users"] += 1
     try:

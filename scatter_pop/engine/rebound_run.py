@@ -134,7 +134,7 @@ class SystemRun:
         return sim
 
     # ------------------------------------------------------------------ state helpers
-    def _arrays(self):
+    def arrays(self):
         return state_arrays(self.sim)
 
     def _name(self, k: int) -> str:
@@ -184,7 +184,7 @@ class SystemRun:
             return 0
         keep, gone = (i, j) if i < j else (j, i)   # REBOUND keeps the lower index
         entry = self._fate_entry(gone, Fate.MERGED, planet_index(self._name(keep)))
-        m, x, v = self._arrays()
+        m, x, v = self.arrays()
         jump = merge_jump(m, x, v, i, j, self.sim.G)
         search = ps[i].r, ps[j].r
         ps[i].r, ps[j].r = ri, rj                    # merged radius from the physical radii
@@ -219,7 +219,7 @@ class SystemRun:
             if float(dx @ dv) < 0.0 and line_min_distance(dx, dv, self.sim.dt_last_done) >= limit:
                 return 0                             # still falling in: decide at a later step
         entry = self._fate_entry(k, fate)
-        m, x, v = self._arrays()
+        m, x, v = self.arrays()
         jump = merge_jump(m, x, v, 0, k, self.sim.G)
         search = ps[0].r
         ps[0].r = self.initial.star_radius
@@ -240,7 +240,7 @@ class SystemRun:
     def _escape(self) -> None:
         sim, limit = self.sim, self.integ.ejection_distance
         while True:
-            m, x, v = self._arrays()
+            m, x, v = self.arrays()
             far = [k for k in range(1, sim.N) if float(np.linalg.norm(x[k] - x[0])) > limit]
             unbound = [k for k in far if binding_to_interior(m, x, v, k, sim.G)[0] >= 0.0]
             if not unbound:
@@ -262,7 +262,7 @@ class SystemRun:
         left = self.sim.N - 1 - leaving
         return left == 0 or (left == 1 and self.settle)
 
-    def _integrate_to(self, t: float) -> None:
+    def integrate_to(self, t: float) -> None:
         """Advance to t (first step past it); a hybrid step is checked every HYBRID_CHECK_STEPS steps."""
         if not self.backend.hybrid:
             self._advance(t)
@@ -305,7 +305,7 @@ class SystemRun:
         if n == 1:
             return EndReason.ONE_PLANET
         if n == 2:
-            m, x, v = self._arrays()
+            m, x, v = self.arrays()
             if marchal_bozis_state_ratio(m, x, v, self.sim.G) >= self.integ.hill_margin:
                 return EndReason.HILL_STABLE
         return None
@@ -316,7 +316,7 @@ class SystemRun:
         reason = self._settled() if self.sim.N <= 2 else None
         while reason is None:
             target = min((self.ledger.chunks_done + 1) * self.chunk, self.t_end)
-            self._integrate_to(target)
+            self.integrate_to(target)
             self.ledger.chunks_done += 1
             self._escape()                               # eject unbound planets beyond the distance
             reason = self._settled()

@@ -28,7 +28,7 @@ import numpy as np
 __all__ = [
     "mutual_hill_radius", "hill_spacing",
     "gladman_circular_critical_delta", "gladman_circular_critical_spacing", "hill_stable_circular",
-    "marchal_bozis_ratio", "marchal_bozis_critical", "marchal_bozis_state_ratio",
+    "euler_value", "marchal_bozis_ratio", "marchal_bozis_critical", "marchal_bozis_state_ratio",
     "petrovich_2015_critical_ratio", "petrovich_2015_stable",
     "safronov_number", "tidal_disruption_radius",
 ]
@@ -159,7 +159,7 @@ def marchal_bozis_ratio(m_star, m1, m2, a1, a2, e1, e2):
 
 
 # --------------------------------------------------------------------------- exact, from E and L
-def _euler_value(m_a, m_b, m_c):
+def euler_value(m_a, m_b, m_c):
     """M I U^2 / M_*^3 (G = 1) of the collinear central configuration a-b-c (b in the middle)."""
     # Euler's quintic for x = r_bc / r_ab (Moulton 1910; e.g. Murray & Dermott 1999, sect. 3.5
     # for the restricted case); exactly one positive root by Descartes' rule of signs.
@@ -193,7 +193,7 @@ def marchal_bozis_critical(m_star, m1, m2):
     m_star, m1, m2 : float
         Masses (any one unit).
     """
-    return max(_euler_value(m_star, m1, m2), _euler_value(m_star, m2, m1))
+    return max(euler_value(m_star, m1, m2), euler_value(m_star, m2, m1))
 
 
 def marchal_bozis_state_ratio(masses, positions, velocities, G):

@@ -27,7 +27,7 @@ import scipy.stats
 
 __all__ = [
     "TwoSampleResult", "two_sample", "ks_critical_coefficient", "ks_critical_value",
-    "ad_ksamp", "ADResult", "REFERENCE_DISTRIBUTIONS", "reference_distribution",
+    "ad_ksamp", "ad_sigma", "ADResult", "REFERENCE_DISTRIBUTIONS", "reference_distribution",
     "OneSampleResult", "one_sample", "fit_beta",
 ]
 
@@ -140,7 +140,7 @@ def _ad_permutation(x: np.ndarray, y: np.ndarray, permutations: int, rng) -> tup
     res = scipy.stats.permutation_test(
         (codes[:n1], codes[n1:]), a2, permutation_type="independent", vectorized=True,
         n_resamples=permutations, batch=max(1, 2_000_000 // n), alternative="greater", rng=rng)
-    t = (float(res.statistic) - 1.0) / _ad_sigma([n1, n2])
+    t = (float(res.statistic) - 1.0) / ad_sigma([n1, n2])
     return t, float(res.pvalue)
 
 
@@ -191,7 +191,7 @@ class ADResult:
     sigma: float
 
 
-def _ad_sigma(sizes: list[int]) -> float:
+def ad_sigma(sizes: list[int]) -> float:
     """σ_N of the k-sample A² under H0 (Scholz & Stephens 1987, eq. 4)."""
     k = len(sizes)
     n = sum(sizes)
@@ -228,7 +228,7 @@ def ad_ksamp(samples, *, variant: str = "midrank") -> ADResult:
         # only the statistic is used here; scipy warns about its interpolated p-value
         warnings.filterwarnings("ignore", message="p-value (floored|capped)", category=UserWarning)
         t = float(scipy.stats.anderson_ksamp(arrays, variant=variant).statistic)
-    sigma = _ad_sigma([a.size for a in arrays])
+    sigma = ad_sigma([a.size for a in arrays])
     return ADResult(a2=t * sigma + (len(arrays) - 1), t=t, sigma=sigma)
 
 

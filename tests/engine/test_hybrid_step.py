@@ -41,7 +41,7 @@ def test_step_is_rechosen_within_a_chunk_after_an_inward_scatter(integrator):
                      OutcomeSpec(), None, True)
     sim = run.sim
     assert sim.dt == pytest.approx(kepler_step(5.0, 0.0), rel=1e-6)      # circular: the period / 50
-    run._integrate_to(20.0)
+    run.integrate_to(20.0)
     assert run.step_changes == []                                          # nothing changed
     # scatter the inner planet by hand onto a = 2.78 AU, e = 0.8 (its apocentre is where it is now)
     p, star = sim.particles[1], sim.particles[0]
@@ -55,7 +55,7 @@ def test_step_is_rechosen_within_a_chunk_after_an_inward_scatter(integrator):
     v_dir /= np.linalg.norm(v_dir)
     p.vx, p.vy, p.vz = (np.asarray(star.vxyz) + speed * v_dir).tolist()
     t_kick, dt_old = sim.t, sim.dt
-    run._integrate_to(t_kick + 2 * HYBRID_CHECK_STEPS * dt_old)            # far inside the first chunk
+    run.integrate_to(t_kick + 2 * HYBRID_CHECK_STEPS * dt_old)            # far inside the first chunk
     assert len(run.step_changes) == 1
     t_change, dt_new = run.step_changes[0]
     assert t_kick < t_change <= t_kick + HYBRID_CHECK_STEPS * dt_old * 1.001   # at the first check
@@ -69,7 +69,7 @@ def test_small_changes_keep_the_step():
                      OutcomeSpec(), None, True)
     p = run.sim.particles[1]
     p.vx, p.vy, p.vz = (1.02 * np.asarray(p.vxyz)).tolist()
-    run._integrate_to(200.0)
+    run.integrate_to(200.0)
     assert run.step_changes == []
     assert STEP_CHANGE > 1.0
 

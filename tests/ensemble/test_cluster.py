@@ -371,7 +371,7 @@ def test_docs_document_every_cluster_key():
     """docs/cluster.md has a table row for every [cluster] key (common practice)."""
     from dataclasses import fields
     from pathlib import Path
-    section = (Path(__file__).resolve().parents[1] / "docs" / "cluster.md").read_text()
+    section = (Path(__file__).resolve().parents[2] / "docs" / "cluster.md").read_text()
     for f in fields(ClusterConfig):
         assert f"| `{f.name}` |" in section, f.name
 

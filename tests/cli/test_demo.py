@@ -91,7 +91,7 @@ def test_demo_bad_target_file_is_one_line_and_exit_2(tmp_path, capsys):
 
 
 def test_shipped_demo_files_are_valid_and_labelled_invented():
-    root = Path(__file__).resolve().parent.parent / "runs"
+    root = Path(__file__).resolve().parents[2] / "runs"
     spec = load_spec(root / "demo.toml")
     assert "invented" in spec.run.name.lower() and "INVENTED" in spec.text
     target, survey, invented = demo.load_demo_target(root / "demo_target.toml")

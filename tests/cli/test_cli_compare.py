@@ -5,10 +5,10 @@ from pathlib import Path
 
 import pytest
 
-from compare_fixtures import random_ensemble, write_run
+from records import random_ensemble, write_run
 from scatter_pop.cli.main import main
 
-DATA = Path(__file__).parent / "data" / "observed_rv_giants.csv"
+DATA = Path(__file__).resolve().parents[1] / "data" / "observed_rv_giants.csv"
 FAST = ["--permutations", "99", "--error-draws", "4", "--bootstrap", "4", "--spread-permutations", "19",
         "--reference-samples", "99"]
 

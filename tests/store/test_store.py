@@ -227,7 +227,7 @@ def test_replacing_rows_keeps_the_other_systems(tmp_path):
 def test_docs_document_every_variable_with_its_units():
     """docs/output-schema.md lists each schema variable with schema.py's units."""
     from pathlib import Path
-    section = (Path(__file__).resolve().parents[1] / "docs" / "output-schema.md").read_text(encoding="utf-8")
+    section = (Path(__file__).resolve().parents[2] / "docs" / "output-schema.md").read_text(encoding="utf-8")
     documented = {}
     for row in section.splitlines():
         cells = [c.strip() for c in row.strip().strip("|").split("|")]

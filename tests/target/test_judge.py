@@ -9,7 +9,7 @@ import pytest
 import scipy.integrate
 import scipy.stats
 
-from handmade import dataset, planet, system, write_run
+from records import dataset, planet, system, write_run
 from scatter_pop import cli
 from scatter_pop.constants import MJUP_MSUN
 from scatter_pop.target.architecture import min_spacing, mutual_hill_spacing
@@ -30,17 +30,17 @@ def _target(**kw):
 
 def _match():
     # a survivor inside every window: e 0.95 >= 0.9, a 9 AU, 5 M_J
-    return [planet(5.0, 5.0, 9.0, 0.95), planet(1.0, 6.5, -20.0, 1.3, Fate.EJECTED)]
+    return [planet(5.0, 9.0, 0.95, a_initial=5.0), planet(1.0, -20.0, 1.3, a_initial=6.5, fate=Fate.EJECTED)]
 
 
 def _miss(i):
     # survivors outside: low e, or right e at the wrong a, or the wrong mass
     kind = i % 3
     if kind == 0:
-        return [planet(5.0, 5.0, 9.0, 0.3), planet(1.0, 6.5, -20.0, 1.3, Fate.EJECTED)]
+        return [planet(5.0, 9.0, 0.3, a_initial=5.0), planet(1.0, -20.0, 1.3, a_initial=6.5, fate=Fate.EJECTED)]
     if kind == 1:
-        return [planet(5.0, 5.0, 3.0, 0.95), planet(1.0, 6.5, -20.0, 1.3, Fate.EJECTED)]
-    return [planet(0.5, 5.0, 9.0, 0.95), planet(1.0, 6.5, -20.0, 1.3, Fate.EJECTED)]
+        return [planet(5.0, 3.0, 0.95, a_initial=5.0), planet(1.0, -20.0, 1.3, a_initial=6.5, fate=Fate.EJECTED)]
+    return [planet(0.5, 9.0, 0.95, a_initial=5.0), planet(1.0, -20.0, 1.3, a_initial=6.5, fate=Fate.EJECTED)]
 
 
 def _ensemble(n, k, **kw):
@@ -100,8 +100,8 @@ def test_survivor_fraction_counts_planets_not_systems():
     # systems with two survivors: the match is one planet of two
     recs = []
     for i in range(60):
-        inner = planet(5.0, 5.0, 9.0, 0.95 if i < 6 else 0.2)
-        recs.append(system(i, [inner, planet(1.0, 7.0, 30.0, 0.5)], reason=EndReason.HILL_STABLE))
+        inner = planet(5.0, 9.0, 0.95 if i < 6 else 0.2, a_initial=5.0)
+        recs.append(system(i, [inner, planet(1.0, 30.0, 0.5, a_initial=7.0)], reason=EndReason.HILL_STABLE))
     res = judge(dataset(recs, 2), _target(true_mass=True)).ensembles[0]
     assert (res.systems.k, res.systems.n) == (6, 60)
     assert (res.survivors.k, res.survivors.n) == (6, 120)
@@ -126,7 +126,7 @@ def test_projected_matches_follow_isotropic_orientation():
     # m sin i window 4-6 M_J then holds it with P = sqrt(1 - (4/6)^2) - 0 (isotropic
     # orientation, cos i uniform: P(sin i <= s) = 1 - sqrt(1 - s^2); common practice)
     n = 4000
-    recs = [system(i, [planet(6.0, 5.0, 9.0, 0.95), planet(1.0, 6.5, -20.0, 1.3, Fate.EJECTED)])
+    recs = [system(i, [planet(6.0, 9.0, 0.95, a_initial=5.0), planet(1.0, -20.0, 1.3, a_initial=6.5, fate=Fate.EJECTED)])
             for i in range(n)]
     t = _target(msini=5.0, msini_err=0.5)
     res = judge(dataset(recs, 2), t, seed=7).ensembles[0]
@@ -159,8 +159,8 @@ def test_soft_weight_factors():
 def test_weighted_fraction_tends_to_hard_count_for_tiny_uncertainties():
     # with e_err -> 0 and the windows' widths the weight is still Gaussian in a and m, so use
     # survivors exactly at the target: weight 1 each; others far away: weight ~0
-    recs = [system(i, [planet(5.0, 5.0, 9.0, 0.95 if i < 8 else 0.1),
-                       planet(1.0, 6.5, -20.0, 1.3, Fate.EJECTED)]) for i in range(100)]
+    recs = [system(i, [planet(5.0, 9.0, 0.95 if i < 8 else 0.1, a_initial=5.0),
+                       planet(1.0, -20.0, 1.3, a_initial=6.5, fate=Fate.EJECTED)]) for i in range(100)]
     t = _target(e_err=1e-6, true_mass=True)
     res = judge(dataset(recs, 2), t).ensembles[0]
     assert res.weighted_systems.value == pytest.approx(0.08, abs=1e-9)
@@ -173,13 +173,13 @@ def test_pathways_of_matching_systems():
     recs = []
     for i in range(40):
         if i < 4:      # matching, the other planet ejected; one is a tidal candidate
-            recs.append(system(i, [planet(5.0, 5.0, 9.0, 0.95, tidal=(i == 0)),
-                                   planet(1.0, 6.5, -20.0, 1.3, Fate.EJECTED)], t_enc=100.0 + i))
+            recs.append(system(i, [planet(5.0, 9.0, 0.95, a_initial=5.0, tidal=(i == 0)),
+                                   planet(1.0, -20.0, 1.3, a_initial=6.5, fate=Fate.EJECTED)], t_enc=100.0 + i))
         elif i < 6:    # matching, the other planet merged
-            recs.append(system(i, [planet(5.0, 5.0, 9.0, 0.95), planet(1.0, 6.5, 6.5, 0.2, Fate.MERGED)],
+            recs.append(system(i, [planet(5.0, 9.0, 0.95, a_initial=5.0), planet(1.0, 6.5, 0.2, a_initial=6.5, fate=Fate.MERGED)],
                                t_enc=200.0))
         else:          # not matching: lost to the star
-            recs.append(system(i, [planet(5.0, 5.0, 4.0, 0.3), planet(1.0, 6.5, 0.1, 0.99, Fate.HIT_STAR)],
+            recs.append(system(i, [planet(5.0, 4.0, 0.3, a_initial=5.0), planet(1.0, 0.1, 0.99, a_initial=6.5, fate=Fate.HIT_STAR)],
                                t_enc=5e3))
     res = judge(dataset(recs, 2), _target(true_mass=True)).ensembles[0]
     pw = res.pathways
@@ -197,9 +197,9 @@ def test_configurations_that_favour_the_target():
     recs = []
     for i in range(60):
         if i < 10:
-            recs.append(system(i, [planet(5.0, 5.0, 9.0, 0.95), planet(1.0, 6.5, -20.0, 1.3, Fate.EJECTED)]))
+            recs.append(system(i, [planet(5.0, 9.0, 0.95, a_initial=5.0), planet(1.0, -20.0, 1.3, a_initial=6.5, fate=Fate.EJECTED)]))
         else:
-            recs.append(system(i, [planet(5.0, 5.0, 4.0, 0.2), planet(5.0, 6.5, -20.0, 1.3, Fate.EJECTED)]))
+            recs.append(system(i, [planet(5.0, 4.0, 0.2, a_initial=5.0), planet(5.0, -20.0, 1.3, a_initial=6.5, fate=Fate.EJECTED)]))
     res = judge(dataset(recs, 2), _target(true_mass=True)).ensembles[0]
     mr = {c.key: c for c in res.configurations}["mass_ratio"]
     assert mr.median_matching == pytest.approx(0.2)
@@ -212,7 +212,7 @@ def test_configurations_that_favour_the_target():
 
 def test_pooled_ensembles_compare_planet_count():
     two = dataset([system(i, _miss(i)) for i in range(30)], 2)
-    three = dataset([system(i, _match() + [planet(1.0, 8.0, -30.0, 1.2, Fate.EJECTED)])
+    three = dataset([system(i, _match() + [planet(1.0, -30.0, 1.2, a_initial=8.0, fate=Fate.EJECTED)])
                      for i in range(20)], 3)
     res = judge([two, three], _target(true_mass=True), labels=["two", "three"])
     assert [r.systems.k for r in res.ensembles] == [0, 20]
@@ -227,7 +227,7 @@ def test_spacing_in_mutual_hill_radii_against_gladman():
     # values from REFERENCES.md); 1e-3: Delta/a1 = 0.352233 -> 3.428
     assert mutual_hill_spacing(1.0, 1.030723, 1e-6, 1e-6, 1.0) == pytest.approx(3.464, abs=2e-3)
     assert mutual_hill_spacing(1.0, 1.352233, 1e-3, 1e-3, 1.0) == pytest.approx(3.428, abs=2e-3)
-    ds = dataset([system(0, [planet(1.0, 1.352233, 1.0, 0.1), planet(1.0, 1.0, 1.0, 0.1)])], 2)
+    ds = dataset([system(0, [planet(1.0, 1.0, 0.1, a_initial=1.352233), planet(1.0, 1.0, 0.1, a_initial=1.0)])], 2)
     ds["mass_initial"][:] = 1e-3
     assert min_spacing(ds, 1.0)[0] == pytest.approx(3.428, abs=2e-3)   # order by a, not by index
     assert ensemble_star_mass(ds) == 1.0
@@ -235,7 +235,7 @@ def test_spacing_in_mutual_hill_radii_against_gladman():
 
 def test_mass_scaling_with_the_targets_star():
     # planets of 2.5 M_J around a 1 M_sun star are like 5 M_J planets around 2 M_sun (same mu)
-    recs = [system(i, [planet(2.5, 5.0, 9.0, 0.95), planet(1.0, 6.5, -20.0, 1.3, Fate.EJECTED)])
+    recs = [system(i, [planet(2.5, 9.0, 0.95, a_initial=5.0), planet(1.0, -20.0, 1.3, a_initial=6.5, fate=Fate.EJECTED)])
             for i in range(20)]
     unscaled = judge(dataset(recs, 2), _target(true_mass=True)).ensembles[0]
     scaled = judge(dataset(recs, 2), _target(true_mass=True, mstar=2.0)).ensembles[0]

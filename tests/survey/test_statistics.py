@@ -60,7 +60,7 @@ def test_ad_sigma_formula_against_null_simulation():
     rng = np.random.default_rng(7)
     sizes = [10, 15, 20]
     a2 = [st.ad_ksamp([rng.random(s) for s in sizes]).a2 for _ in range(1500)]
-    sigma = st._ad_sigma(sizes)
+    sigma = st.ad_sigma(sizes)
     # mean of A2 under H0 is k-1 (Scholz & Stephens 1987, eq. 3 discussion)
     assert np.mean(a2) == pytest.approx(2.0, abs=0.1)
     assert np.std(a2) == pytest.approx(sigma, rel=0.08)

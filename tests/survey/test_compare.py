@@ -7,7 +7,7 @@ import json
 import numpy as np
 import pytest
 
-from compare_fixtures import random_ensemble, write_run
+from records import random_ensemble, write_run
 from scatter_pop.survey.comparison import CompareOptions, compare, load_ensemble
 from scatter_pop.survey.cuts import Range, SampleCuts
 from scatter_pop.errors import InputError

@@ -10,7 +10,7 @@ import pytest
 import scipy.stats
 from PIL import Image
 
-from handmade import planet, system, write_run
+from records import planet, system, write_run
 from scatter_pop import cli
 from scatter_pop.engine.outcome import EndReason, Fate
 
@@ -30,19 +30,20 @@ def _two_planet_run():
         m1, m2 = 1.0 + 0.1 * i, 2.0
         if kind == "none":
             e2, a2 = 0.5 * e1, 15.0
-            ps = [planet(m1, 3.0, a1, e1), planet(m2, 4.0, a2, e2)]
+            ps = [planet(m1, a1, e1, a_initial=3.0), planet(m2, a2, e2, a_initial=4.0)]
             expected[kind] += [(e1, a1, min(m1, m2) / max(m1, m2)), (e2, a2, min(m1, m2) / max(m1, m2))]
         else:
             fate = {"ejection": Fate.EJECTED, "merger": Fate.MERGED, "star": Fate.HIT_STAR}[kind]
-            ps = [planet(m1, 3.0, a1, e1), planet(m2, 4.0, -30.0 if kind == "ejection" else 1.0,
-                                                  1.2 if kind == "ejection" else 0.9, fate)]
+            ps = [planet(m1, a1, e1, a_initial=3.0), planet(m2, -30.0 if kind == "ejection" else 1.0,
+                                                  1.2 if kind == "ejection" else 0.9, a_initial=4.0,
+                                                  fate=fate)]
             expected[kind].append((e1, a1, min(m1, m2) / max(m1, m2)))
         t = math.nan if kind == "none" else 10.0 ** (2 + 0.05 * i)
         t_enc.append(t)
         recs.append(system(i, ps, t_enc=t, reason=EndReason.HILL_STABLE if kind == "none" else
                            EndReason.ONE_PLANET))
-    recs.append(system(40, [planet(1.0, 3.0, 2.0, 0.99), planet(1.0, 4.0, 3.0, 0.5)], reason=EndReason.FAILED))
-    recs.append(system(41, [planet(1.0, 3.0, 2.0, 0.98), planet(1.0, 4.0, 3.0, 0.5)], reason=EndReason.CAPPED))
+    recs.append(system(40, [planet(1.0, 2.0, 0.99, a_initial=3.0), planet(1.0, 3.0, 0.5, a_initial=4.0)], reason=EndReason.FAILED))
+    recs.append(system(41, [planet(1.0, 2.0, 0.98, a_initial=3.0), planet(1.0, 3.0, 0.5, a_initial=4.0)], reason=EndReason.CAPPED))
     return recs, expected, t_enc
 
 
@@ -52,8 +53,8 @@ def _three_planet_run():
         e = 0.05 + 0.03 * i
         # an ejection and a merger: "several"; every fifth system only ejections
         second = Fate.MERGED if i % 5 else Fate.EJECTED
-        recs.append(system(i, [planet(1.0, 3.0, 3.0 + 0.1 * i, e), planet(1.0, 4.0, -40.0, 1.5, Fate.EJECTED),
-                               planet(0.5, 5.0, 4.0, 0.3, second)], t_enc=50.0 + i))
+        recs.append(system(i, [planet(1.0, 3.0 + 0.1 * i, e, a_initial=3.0), planet(1.0, -40.0, 1.5, a_initial=4.0, fate=Fate.EJECTED),
+                               planet(0.5, 4.0, 0.3, a_initial=5.0, fate=second)], t_enc=50.0 + i))
         e_all.append(e)
     return recs, e_all
 
@@ -207,7 +208,7 @@ def test_paper_figure_script_builds_figures_and_tables(tmp_path):
     # analysis/paper_figures.py: two runs -> figure set, outcome table, comparison tables
     import importlib.util
     from pathlib import Path
-    path = Path(__file__).resolve().parent.parent / "analysis" / "paper_figures.py"
+    path = Path(__file__).resolve().parents[2] / "analysis" / "paper_figures.py"
     spec = importlib.util.spec_from_file_location("paper_figures", path)
     module = importlib.util.module_from_spec(spec)
     spec.loader.exec_module(module)
@@ -231,7 +232,7 @@ def test_figure_set_of_a_run_without_usable_systems(tmp_path):
     # every system failed: the figures are drawn empty (no crash, no legend warnings) and the
     # CSVs hold no rows of survivors
     import warnings
-    recs = [system(i, [planet(1.0, 3.0, 2.0, 0.5), planet(1.0, 4.0, 3.0, 0.5)], reason=EndReason.FAILED)
+    recs = [system(i, [planet(1.0, 2.0, 0.5, a_initial=3.0), planet(1.0, 3.0, 0.5, a_initial=4.0)], reason=EndReason.FAILED)
             for i in range(3)]
     run = write_run(tmp_path / "failed", recs, 2)
     with warnings.catch_warnings():

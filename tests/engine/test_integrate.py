@@ -26,7 +26,7 @@ from scatter_pop.engine.stability import hill_stable_circular, marchal_bozis_rat
 from tight_trio import tight_trio_spec
 
 MJ, RJ = MJUP_MSUN, R_JUP_AU
-TINY = Path(__file__).parent / "data" / "tiny.toml"
+TINY = Path(__file__).resolve().parents[1] / "data" / "tiny.toml"
 
 
 def pair(delta, phases=(0.0, 1.0), a1=1.0, e=(0.0, 0.0)):
@@ -101,7 +101,7 @@ def test_pairs_outside_the_gladman_boundary_never_meet_in_ten_thousand_orbits():
         ini = pair(4.0, phases)
         assert hill_stable_circular(1.0, MJ, MJ, ini.a[0], ini.a[1])
         run = SystemRun(ini, IntegrationSpec(integrator="ias15", end_orbits=1e4), OutcomeSpec(), None, True)
-        m, x, v = run._arrays()
+        m, x, v = run.arrays()
         assert marchal_bozis_state_ratio(m, x, v, G_AU_YR_MSUN) > 1.0
         rec = run.run()
         assert math.isnan(rec.t_first_encounter)

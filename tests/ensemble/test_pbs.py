@@ -20,9 +20,10 @@ import pytest
 
 from scatter_pop.ensemble.cluster import connect, job_script
 from scatter_pop.spec.reader import parse_spec
-from slurm_harness import PARTITION, slurm, squeue_jobs, wait_for_no_jobs  # noqa: F401 (fixture)
+from slurm_harness import PARTITION, squeue_jobs, wait_for_no_jobs
 
-TESTS = os.path.dirname(os.path.abspath(__file__))
+HERE = os.path.dirname(os.path.abspath(__file__))      # this file's folder (workers unpickle its tasks)
+TESTS = os.path.dirname(HERE)                         # tests/: data and helper modules
 TINY = Path(TESTS, "data", "tiny.toml").read_text()
 
 PBS_SPEC = TINY + """
@@ -90,7 +91,7 @@ jobs = 1
 interface = "lo"
 dashboard_port = 0
 log_directory = "{tmp_path / 'logs'}"
-job_script_prologue = ["export PYTHONPATH={TESTS}${{PYTHONPATH:+:$PYTHONPATH}}"]
+job_script_prologue = ["export PYTHONPATH={HERE}:{TESTS}${{PYTHONPATH:+:$PYTHONPATH}}"]
 """
     config = parse_spec(text, source="pbs-local.toml").cluster
     with connect(config) as client:

@@ -32,15 +32,16 @@ from distributed import as_completed
 
 from scatter_pop.ensemble.cluster import ClusterConfig, connect, job_script
 from scatter_pop.errors import InputError
-from slurm_harness import PARTITION, slurm, squeue_jobs, wait_for_no_jobs  # noqa: F401 (fixture)
+from slurm_harness import PARTITION, squeue_jobs, wait_for_no_jobs
 
 pytestmark = [pytest.mark.slurm, pytest.mark.slow]
 
-TESTS = os.path.dirname(os.path.abspath(__file__))
+HERE = os.path.dirname(os.path.abspath(__file__))      # this file's folder (workers unpickle its tasks)
+TESTS = os.path.dirname(HERE)                         # tests/: data and helper modules
 ROOT = os.path.dirname(TESTS)
 # the task functions below are pickled by reference to this module: the worker jobs import it
 # from the tests folder, which the job-script prologue puts on their path
-PROLOGUE = [f"export PYTHONPATH={TESTS}${{PYTHONPATH:+:$PYTHONPATH}}"]
+PROLOGUE = [f"export PYTHONPATH={HERE}:{TESTS}${{PYTHONPATH:+:$PYTHONPATH}}"]
 
 
 def slurm_table(tmp_path, **overrides) -> dict:
@@ -75,10 +76,10 @@ def test_unavailable_slurm_fails_in_ci_and_skips_only_outside(monkeypatch):
     import slurm_harness
     monkeypatch.setenv("CI", "true")
     with pytest.raises(pytest.fail.Exception, match="real SLURM unavailable: no apt-get"):
-        slurm_harness._unavailable("no apt-get")
+        slurm_harness.unavailable("no apt-get")
     monkeypatch.delenv("CI")
     with pytest.raises(pytest.skip.Exception, match="CI unset"):
-        slurm_harness._unavailable("no apt-get")
+        slurm_harness.unavailable("no apt-get")
 
 
 def test_job_script_accepted_by_sbatch(slurm, tmp_path):

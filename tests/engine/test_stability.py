@@ -72,7 +72,7 @@ def test_exact_critical_value_matches_marchal_bozis_series(mu1, mu2):
     # must agree to its next order, O(mu^(4/3)).
     series = 1 + 3 ** (4 / 3) * mu1 * mu2 / (mu1 + mu2) ** (4 / 3) \
         - mu1 * mu2 * (11 * mu1 + 7 * mu2) / (3 * (mu1 + mu2) ** 2)
-    exact = s._euler_value(1.0, mu1, mu2)
+    exact = s.euler_value(1.0, mu1, mu2)
     assert abs(exact - series) < 2 * (mu1 + mu2) ** (4 / 3)
     assert s.marchal_bozis_critical(1.0, mu1, mu2) >= exact
 

@@ -18,7 +18,7 @@ from scatter_pop.cli.main import main
 from scatter_pop.errors import InputError
 from scatter_pop.spec.reader import Distribution, load_spec, parse_spec
 
-DATA = Path(__file__).parent / "data"
+DATA = Path(__file__).resolve().parents[1] / "data"
 
 GOOD = """
 [run]

@@ -6,7 +6,7 @@ import re
 import numpy as np
 import scipy.stats
 
-from handmade import dataset, planet, system
+from records import dataset, planet, system
 from scatter_pop.paper.figure_data import branching_table, comparison_stats_table
 from scatter_pop.engine.outcome import Fate
 from scatter_pop.survey.statistics import two_sample
@@ -15,9 +15,9 @@ from scatter_pop.paper.latex_tables import latex_escape, latex_percent, latex_pv
 
 def _runs():
     def run(n_ej, n_none):
-        recs = [system(i, [planet(1.0, 3.0, 2.0, 0.6), planet(1.0, 4.0, -20.0, 1.2, Fate.EJECTED)])
+        recs = [system(i, [planet(1.0, 2.0, 0.6, a_initial=3.0), planet(1.0, -20.0, 1.2, a_initial=4.0, fate=Fate.EJECTED)])
                 for i in range(n_ej)]
-        recs += [system(n_ej + i, [planet(1.0, 3.0, 3.0, 0.1), planet(1.0, 4.0, 6.0, 0.05)])
+        recs += [system(n_ej + i, [planet(1.0, 3.0, 0.1, a_initial=3.0), planet(1.0, 6.0, 0.05, a_initial=4.0)])
                  for i in range(n_none)]
         return dataset(recs, 2)
     return [("2_planets & co", run(30, 10)), ("equal%masses", run(5, 45))]

@@ -11,7 +11,7 @@ from scatter_pop.survey.cuts import Range, SampleCuts
 from scatter_pop.errors import InputError
 from scatter_pop.survey.catalogue import ColumnMap, load_catalogue
 
-DATA = Path(__file__).parent / "data" / "observed_rv_giants.csv"
+DATA = Path(__file__).resolve().parents[1] / "data" / "observed_rv_giants.csv"
 HEADER = "id,e,e_err_lo,e_err_hi,a_au,period_days,mass_mjup,mass_type,has_inclination,mstar_msun,host_type,discovery_year"
 
 

@@ -7,7 +7,7 @@ import numpy as np
 import pytest
 import scipy.stats
 
-from compare_fixtures import planet, random_ensemble, system
+from records import planet, random_ensemble, system
 from scatter_pop.survey import radial_velocity as rv
 from scatter_pop.constants import MJUP_MSUN
 from scatter_pop.survey.cuts import Range, SampleCuts
@@ -58,7 +58,7 @@ def test_lines_of_sight_isotropic_cos_i_uniform():
 def test_coplanar_planets_share_the_line_of_sight():
     # two survivors on the same plane are seen at the same inclination (one observer per system)
     ds = _ds([system(i, [planet(2.0, 1.0, 0.2, inc=0.4, node=1.0), planet(1.0, 4.0, 0.1, inc=0.4, node=1.0)],
-                     end_reason=EndReason.HILL_STABLE) for i in range(50)])
+                     reason=EndReason.HILL_STABLE) for i in range(50)])
     t = survivor_table(ds, rng=3)
     s = t["sin_i"].reshape(50, 2)
     assert np.allclose(s[:, 0], s[:, 1]) and np.ptp(s[:, 0]) > 0.3
@@ -66,11 +66,11 @@ def test_coplanar_planets_share_the_line_of_sight():
 
 def test_quality_cuts_counted():
     recs = [system(0, [planet(2.0, 1.0, 0.5), planet(1.0, -5, 1.2, fate=Fate.EJECTED)]),
-            system(1, [planet(2.0, 1.0, 0.5)], end_reason=EndReason.FAILED),
-            system(2, [planet(2.0, 1.0, 0.5)], end_reason=EndReason.CAPPED),
-            system(3, [planet(2.0, 1.0, 0.5)], energy_error=3e-3),
-            system(4, [planet(2.0, 1.0, 0.5)], energy_error=math.nan),
-            system(5, [planet(2.0, 1.0, 0.6), planet(1.0, 3.0, 0.1)], end_reason=EndReason.HILL_STABLE)]
+            system(1, [planet(2.0, 1.0, 0.5)], reason=EndReason.FAILED),
+            system(2, [planet(2.0, 1.0, 0.5)], reason=EndReason.CAPPED),
+            system(3, [planet(2.0, 1.0, 0.5)], energy=3e-3),
+            system(4, [planet(2.0, 1.0, 0.5)], energy=math.nan),
+            system(5, [planet(2.0, 1.0, 0.6), planet(1.0, 3.0, 0.1)], reason=EndReason.HILL_STABLE)]
     ds = _ds(recs)
     assert quality_counts(ds) == {"systems": 6, "failed": 1, "capped": 1, "energy_error": 2, "kept": 2}
     assert quality_counts(ds, include_capped=True)["kept"] == 3
