@@ -5,7 +5,7 @@ VENV   := .venv
 BIN    := $(VENV)/bin
 STAMP  := $(VENV)/.installed
 
-.PHONY: demo test install clean-demo
+.PHONY: demo test lint format install clean-demo
 
 $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
@@ -17,6 +17,14 @@ install: $(STAMP)
 
 test: $(STAMP)
 	$(BIN)/python -m pytest -q
+
+lint: $(STAMP)
+	$(BIN)/ruff check .
+	$(BIN)/ruff format --check .
+
+format: $(STAMP)
+	$(BIN)/ruff check --fix .
+	$(BIN)/ruff format .
 
 demo: $(STAMP)
 	$(BIN)/python -m scatter_pop.cli.demo runs/demo.toml --out runs/demo_out

@@ -55,15 +55,19 @@ def measure(spec, workers: int, root: Path) -> dict:
     t0 = time.perf_counter()
     with connect(ClusterConfig(), workers=workers) as client:
         t_connected = time.perf_counter()
-        run = EnsembleRun(spec, root / f"w{workers}", client=client, progress_interval=3600.0,
-                          log=lambda line: None)
+        run = EnsembleRun(spec, root / f"w{workers}", client=client, progress_interval=3600.0, log=lambda line: None)
         run.run()
     t_end = time.perf_counter()
     tm = run.timings
     integ = tm.integration_seconds
     return {
-        "workers": workers, "systems": tm.systems_computed, "startup": t_connected - t0,
-        "compute": tm.compute, "gather": tm.gather, "total": t_end - t0, "integration": integ,
+        "workers": workers,
+        "systems": tm.systems_computed,
+        "startup": t_connected - t0,
+        "compute": tm.compute,
+        "gather": tm.gather,
+        "total": t_end - t0,
+        "integration": integ,
         "throughput": tm.systems_computed / tm.compute,
         "outside_compute": 1.0 - integ / (workers * tm.compute),
         "outside_total": 1.0 - integ / (workers * (t_end - t0)),
@@ -82,22 +86,30 @@ def main(argv=None) -> None:
         for w in args.workers:
             rows.append(measure(spec, w, Path(tmp)))
     print(f"{args.systems} systems, end time {args.end_time:g} yr, ias15, automatic batches")
-    print(f"{'workers':>7} {'start s':>8} {'compute s':>10} {'gather s':>9} {'integr. CPU s':>14} "
-          f"{'systems/s':>10} {'outside integr. (compute)':>26} {'(whole run)':>12}")
+    print(
+        f"{'workers':>7} {'start s':>8} {'compute s':>10} {'gather s':>9} {'integr. CPU s':>14} "
+        f"{'systems/s':>10} {'outside integr. (compute)':>26} {'(whole run)':>12}"
+    )
     for r in rows:
-        print(f"{r['workers']:>7} {r['startup']:>8.2f} {r['compute']:>10.2f} {r['gather']:>9.2f} "
-              f"{r['integration']:>14.2f} {r['throughput']:>10.3f} {100 * r['outside_compute']:>25.2f}% "
-              f"{100 * r['outside_total']:>11.2f}%")
+        print(
+            f"{r['workers']:>7} {r['startup']:>8.2f} {r['compute']:>10.2f} {r['gather']:>9.2f} "
+            f"{r['integration']:>14.2f} {r['throughput']:>10.3f} {100 * r['outside_compute']:>25.2f}% "
+            f"{100 * r['outside_total']:>11.2f}%"
+        )
     base, top = rows[0], rows[-1]
     if top["workers"] != base["workers"]:
         speedup = top["throughput"] / base["throughput"]
         efficiency = speedup / (top["workers"] / base["workers"])
-        print(f"speed-up {top['workers']} vs {base['workers']} workers: {speedup:.2f}; "
-              f"parallel efficiency {100 * efficiency:.1f} %")
+        print(
+            f"speed-up {top['workers']} vs {base['workers']} workers: {speedup:.2f}; "
+            f"parallel efficiency {100 * efficiency:.1f} %"
+        )
         slower = (top["integration"] / top["systems"]) / (base["integration"] / base["systems"])
-        print(f"mean integration time per system, {top['workers']} vs {base['workers']} workers: x{slower:.2f} "
-              "(above 1: the workers compete for CPU -- other processes or too few cores -- which the "
-              "driver cannot help)")
+        print(
+            f"mean integration time per system, {top['workers']} vs {base['workers']} workers: x{slower:.2f} "
+            "(above 1: the workers compete for CPU -- other processes or too few cores -- which the "
+            "driver cannot help)"
+        )
 
 
 if __name__ == "__main__":

@@ -34,8 +34,9 @@ def inner_period(spec) -> float:
 
 def measure(path: str, systems: int, orbits: float) -> None:
     spec = load_spec(path)
-    short = dataclasses.replace(spec, integration=dataclasses.replace(
-        spec.integration, end_time=None, end_orbits=float(orbits)))
+    short = dataclasses.replace(
+        spec, integration=dataclasses.replace(spec.integration, end_time=None, end_orbits=float(orbits))
+    )
     period = inner_period(spec)
     full_orbits = spec.integration.end_time_years(period) / period
     cpu, steps, early, running = [], [], 0, []
@@ -50,16 +51,24 @@ def measure(path: str, systems: int, orbits: float) -> None:
     per_system = sum(cpu) / systems
     per_korbit = 1000 * per_system / orbits
     upper = per_korbit * full_orbits / 1000 * spec.run.systems / 3600
-    print(f"{path}: {spec.planets.count} planets, inner period {period:.3g} yr, end "
-          f"{full_orbits:.3g} inner orbits, {spec.run.systems} systems")
-    print(f"  sample: {systems} systems x {orbits:g} orbits: {per_system:.2f} CPU s per system, "
-          f"{per_korbit:.3f} CPU s per 1000 inner orbits, {sum(steps) / systems / orbits:.1f} steps per "
-          f"orbit, {1e6 * sum(cpu) / sum(steps):.1f} us per step; {early} of {systems} stopped early")
+    print(
+        f"{path}: {spec.planets.count} planets, inner period {period:.3g} yr, end "
+        f"{full_orbits:.3g} inner orbits, {spec.run.systems} systems"
+    )
+    print(
+        f"  sample: {systems} systems x {orbits:g} orbits: {per_system:.2f} CPU s per system, "
+        f"{per_korbit:.3f} CPU s per 1000 inner orbits, {sum(steps) / systems / orbits:.1f} steps per "
+        f"orbit, {1e6 * sum(cpu) / sum(steps):.1f} us per step; {early} of {systems} stopped early"
+    )
     if running:
-        print(f"  the {len(running)} systems that ran to the end: {sum(running) / len(running):.3f} CPU s per 1000 "
-              f"inner orbits on average, {max(running):.3f} at most")
-    print(f"  campaign if every system ran to the end at this rate: {upper:.3g} CPU hours "
-          f"({upper / 64:.3g} h on 64 cores)")
+        print(
+            f"  the {len(running)} systems that ran to the end: {sum(running) / len(running):.3f} CPU s per 1000 "
+            f"inner orbits on average, {max(running):.3f} at most"
+        )
+    print(
+        f"  campaign if every system ran to the end at this rate: {upper:.3g} CPU hours "
+        f"({upper / 64:.3g} h on 64 cores)"
+    )
 
 
 def main() -> None:

@@ -22,14 +22,26 @@ from pathlib import Path
 import xarray as xr
 
 ROOT = Path(__file__).resolve().parent.parent
-VOLATILE = {"sources", "source", "path", "paths", "created", "version", "scatter_pop_version",
-            "rebound_version", "heyoka_version", "history", "wall_seconds", "cpu_seconds"}
+VOLATILE = {
+    "sources",
+    "source",
+    "path",
+    "paths",
+    "created",
+    "version",
+    "scatter_pop_version",
+    "rebound_version",
+    "heyoka_version",
+    "history",
+    "wall_seconds",
+    "cpu_seconds",
+}
 
 
 def _physics_names(ds):
     try:
         from scatter_pop.store.schema import PHYSICS_VARIABLES
-    except ImportError:                                   # the flat layout before the subpackages
+    except ImportError:  # the flat layout before the subpackages
         from scatter_pop.schema import PHYSICS_VARIABLES
     return [n for n in PHYSICS_VARIABLES if n in ds]
 
@@ -57,6 +69,7 @@ def _hash_json(path) -> str:
 
 def fingerprint(out: Path) -> dict:
     import scatter_pop as sp
+
     out.mkdir(parents=True, exist_ok=True)
     result = {}
     # tiny.toml as it is
@@ -74,8 +87,9 @@ def fingerprint(out: Path) -> dict:
         from scatter_pop.demo import run_demo
     except ImportError:
         from scatter_pop.cli.demo import run_demo
-    paths = run_demo(spec_path, out / "demo24", workers=1, formats=("png",), permutations=500,
-                     spread_draws=20, log=lambda *_: None)
+    paths = run_demo(
+        spec_path, out / "demo24", workers=1, formats=("png",), permutations=500, spread_draws=20, log=lambda *_: None
+    )
     ds = xr.open_dataset(paths["ensemble"])
     for name in _physics_names(ds):
         result[f"demo24/{name}"] = _hash_array(ds[name].values)

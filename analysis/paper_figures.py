@@ -24,14 +24,14 @@ import argparse
 import sys
 from pathlib import Path
 
-from scatter_pop.survey.comparison import CompareOptions, compare
 from scatter_pop.constants import MJUP_MSUN
-from scatter_pop.survey.cuts import SampleCuts, check_range
 from scatter_pop.errors import InputError
 from scatter_pop.paper.figure_set import write_figure_set
 from scatter_pop.survey.catalogue import load_catalogue
-from scatter_pop.survey.report import render
+from scatter_pop.survey.comparison import CompareOptions, compare
+from scatter_pop.survey.cuts import SampleCuts, check_range
 from scatter_pop.survey.forward_model import RVSurvey
+from scatter_pop.survey.report import render
 
 ROOT = Path(__file__).resolve().parent.parent
 DEFAULT_OBSERVED = ROOT / "tests" / "data" / "observed_rv_giants.csv"
@@ -47,8 +47,20 @@ def _pair(text, flag):
     return low, high
 
 
-def build(dirs, labels, out, *, observed=DEFAULT_OBSERVED, rv_survey=None, a_range=None, mass_range=None,
-          formats=("pdf",), seed=1, draws=200, permutations=2000) -> dict:
+def build(
+    dirs,
+    labels,
+    out,
+    *,
+    observed=DEFAULT_OBSERVED,
+    rv_survey=None,
+    a_range=None,
+    mass_range=None,
+    formats=("pdf",),
+    seed=1,
+    draws=200,
+    permutations=2000,
+) -> dict:
     """Make the figure set and the tables; return the paths written.
 
     Parameters
@@ -72,16 +84,26 @@ def build(dirs, labels, out, *, observed=DEFAULT_OBSERVED, rv_survey=None, a_ran
     draws, permutations : int
         Error-bar / bootstrap redraws and AD permutations of the comparison.
     """
-    from scatter_pop.survey.comparison import load_ensemble
     from scatter_pop.store.run_folder import atomic_write_text
+    from scatter_pop.survey.comparison import load_ensemble
+
     if len(labels) != len(dirs):
         raise InputError(f"--labels: {len(labels)} names for {len(dirs)} runs")
-    cuts = SampleCuts(a=None if a_range is None else check_range(*a_range, "--a-range"),
-                      mass=None if mass_range is None else check_range(
-                          mass_range[0] * MJUP_MSUN, mass_range[1] * MJUP_MSUN, "--mass-range"))
-    options = CompareOptions(cuts=cuts, survey=None if rv_survey is None else RVSurvey(*rv_survey),
-                             permutations=permutations, uncertainty_draws=draws, bootstrap_draws=draws,
-                             spread_permutations=min(draws, permutations), seed=seed)
+    cuts = SampleCuts(
+        a=None if a_range is None else check_range(*a_range, "--a-range"),
+        mass=None
+        if mass_range is None
+        else check_range(mass_range[0] * MJUP_MSUN, mass_range[1] * MJUP_MSUN, "--mass-range"),
+    )
+    options = CompareOptions(
+        cuts=cuts,
+        survey=None if rv_survey is None else RVSurvey(*rv_survey),
+        permutations=permutations,
+        uncertainty_draws=draws,
+        bootstrap_draws=draws,
+        spread_permutations=min(draws, permutations),
+        seed=seed,
+    )
     catalogue = load_catalogue(observed, cuts=cuts)
     runs = [(label, load_ensemble(d)) for label, d in zip(labels, dirs)]
     samples = [(label, [ds]) for label, ds in runs]
@@ -114,14 +136,21 @@ def main(argv=None) -> int:
     parser.add_argument("--draws", type=int, default=200, help="error-bar and bootstrap redraws")
     parser.add_argument("--permutations", type=int, default=2000)
     args = parser.parse_args(argv)
-    labels = ([s.strip() for s in args.labels.split(",")] if args.labels
-              else [Path(d).resolve().name for d in args.dirs])
+    labels = [s.strip() for s in args.labels.split(",")] if args.labels else [Path(d).resolve().name for d in args.dirs]
     try:
-        paths = build(args.dirs, labels, args.out, observed=args.observed,
-                      rv_survey=_pair(args.rv_survey, "--rv-survey"), a_range=_pair(args.a_range, "--a-range"),
-                      mass_range=_pair(args.mass_range, "--mass-range"),
-                      formats=tuple(args.format.split(",")), seed=args.seed, draws=args.draws,
-                      permutations=args.permutations)
+        paths = build(
+            args.dirs,
+            labels,
+            args.out,
+            observed=args.observed,
+            rv_survey=_pair(args.rv_survey, "--rv-survey"),
+            a_range=_pair(args.a_range, "--a-range"),
+            mass_range=_pair(args.mass_range, "--mass-range"),
+            formats=tuple(args.format.split(",")),
+            seed=args.seed,
+            draws=args.draws,
+            permutations=args.permutations,
+        )
     except InputError as exc:
         print(f"paper_figures: error: {exc}", file=sys.stderr)
         return 2

@@ -28,32 +28,57 @@ from importlib.metadata import version as _dist_version
 
 try:
     __version__ = _dist_version("scatter_pop")
-except _NotInstalled:        # run from a source tree that was never installed
+except _NotInstalled:  # run from a source tree that was never installed
     __version__ = "0+unknown"
 
 _API = {
-    "load_spec": "scatter_pop.spec", "parse_spec": "scatter_pop.spec", "EnsembleSpec": "scatter_pop.spec",
-    "draw_system": "scatter_pop.engine", "integrate_system": "scatter_pop.engine",
-    "SystemRecord": "scatter_pop.engine", "Fate": "scatter_pop.engine", "EndReason": "scatter_pop.engine",
-    "run_ensemble": "scatter_pop.ensemble", "open_ensemble": "scatter_pop.store",
-    "load_catalogue": "scatter_pop.survey", "compare": "scatter_pop.survey",
-    "CompareOptions": "scatter_pop.survey", "RVSurvey": "scatter_pop.survey",
-    "two_sample": "scatter_pop.survey", "one_sample": "scatter_pop.survey",
-    "judge": "scatter_pop.target", "Target": "scatter_pop.target", "Windows": "scatter_pop.target",
-    "write_figure_set": "scatter_pop.paper", "InputError": "scatter_pop.errors",
+    "load_spec": "scatter_pop.spec",
+    "parse_spec": "scatter_pop.spec",
+    "EnsembleSpec": "scatter_pop.spec",
+    "draw_system": "scatter_pop.engine",
+    "integrate_system": "scatter_pop.engine",
+    "SystemRecord": "scatter_pop.engine",
+    "Fate": "scatter_pop.engine",
+    "EndReason": "scatter_pop.engine",
+    "run_ensemble": "scatter_pop.ensemble",
+    "open_ensemble": "scatter_pop.store",
+    "load_catalogue": "scatter_pop.survey",
+    "compare": "scatter_pop.survey",
+    "CompareOptions": "scatter_pop.survey",
+    "RVSurvey": "scatter_pop.survey",
+    "two_sample": "scatter_pop.survey",
+    "one_sample": "scatter_pop.survey",
+    "judge": "scatter_pop.target",
+    "Target": "scatter_pop.target",
+    "Windows": "scatter_pop.target",
+    "write_figure_set": "scatter_pop.paper",
+    "InputError": "scatter_pop.errors",
 }
 
 # Modules of the flat layout before the subpackages, and where they went.  ``compare`` and
 # ``judge`` are not among them: those names are now the functions.
 _MOVED = {
-    "cluster_config": "spec.cluster_table", "initial_conditions": "engine.initial_conditions",
-    "integrate": "engine.integrate", "encounters": "engine.encounters", "ledger": "engine.ledger",
-    "outcome": "engine.outcome", "stability": "engine.stability", "schema": "store.schema",
-    "cluster": "ensemble.cluster", "observed": "survey.catalogue", "cuts": "survey.cuts",
-    "simulated": "survey.forward_model", "radial_velocity": "survey.radial_velocity",
-    "statistics": "survey.statistics", "resampling": "survey.resampling", "verdict": "target.verdict",
-    "proportions": "target.proportions", "figure_data": "paper.figure_data", "figures": "paper.drawing",
-    "figure_set": "paper.figure_set", "demo": "cli.demo",
+    "cluster_config": "spec.cluster_table",
+    "initial_conditions": "engine.initial_conditions",
+    "integrate": "engine.integrate",
+    "encounters": "engine.encounters",
+    "ledger": "engine.ledger",
+    "outcome": "engine.outcome",
+    "stability": "engine.stability",
+    "schema": "store.schema",
+    "cluster": "ensemble.cluster",
+    "observed": "survey.catalogue",
+    "cuts": "survey.cuts",
+    "simulated": "survey.forward_model",
+    "radial_velocity": "survey.radial_velocity",
+    "statistics": "survey.statistics",
+    "resampling": "survey.resampling",
+    "verdict": "target.verdict",
+    "proportions": "target.proportions",
+    "figure_data": "paper.figure_data",
+    "figures": "paper.drawing",
+    "figure_set": "paper.figure_set",
+    "demo": "cli.demo",
 }
 
 __all__ = ["__version__", *_API]
@@ -85,7 +110,7 @@ class _MovedFinder(importlib.abc.MetaPathFinder, importlib.abc.Loader):
 
     def create_module(self, spec):
         module = import_module(f"scatter_pop.{_MOVED[spec.name.split('.', 1)[1]]}")
-        self._own_spec = module.__spec__          # the import system sets the alias's spec on it
+        self._own_spec = module.__spec__  # the import system sets the alias's spec on it
         return module
 
     def exec_module(self, module):

@@ -26,8 +26,20 @@ import pytest
 
 from scatter_pop.store.schema import PHYSICS_VARIABLES
 
-__all__ = ["TINY_TEXT", "spec_text", "write_spec", "reference", "run_cli", "start_cli", "kill_group",
-           "assert_physics_equal", "ensure_program", "SCATTER_POP", "part_files", "wait_for"]
+__all__ = [
+    "TINY_TEXT",
+    "spec_text",
+    "write_spec",
+    "reference",
+    "run_cli",
+    "start_cli",
+    "kill_group",
+    "assert_physics_equal",
+    "ensure_program",
+    "SCATTER_POP",
+    "part_files",
+    "wait_for",
+]
 
 ROOT = Path(__file__).resolve().parents[1]
 SCATTER_POP = str(Path(sys.executable).with_name("scatter-pop"))
@@ -62,9 +74,11 @@ end_time = 300.0
 
 def spec_text(systems: int = 4, end_time: float = 300.0, extra: str = "", seed: int = 12345) -> str:
     """TINY_TEXT with another number of systems / end time / seed, plus extra [integration] lines."""
-    text = (TINY_TEXT.replace("systems = 4", f"systems = {systems}")
-            .replace("end_time = 300.0", f"end_time = {end_time!r}")
-            .replace("seed = 12345", f"seed = {seed}"))
+    text = (
+        TINY_TEXT.replace("systems = 4", f"systems = {systems}")
+        .replace("end_time = 300.0", f"end_time = {end_time!r}")
+        .replace("seed = 12345", f"seed = {seed}")
+    )
     return text + extra
 
 
@@ -99,6 +113,7 @@ def reference(systems: int, end_time: float = 300.0, extra: str = ""):
         from scatter_pop import parse_spec
         from scatter_pop.engine.integrate import integrate_system
         from scatter_pop.store.schema import records_to_dataset
+
         spec = parse_spec(spec_text(systems=systems, end_time=end_time, extra=extra))
         records = [integrate_system(spec, i) for i in range(systems)]
         _REFERENCE[key] = records_to_dataset(records, spec.planets.count)
@@ -108,9 +123,15 @@ def reference(systems: int, end_time: float = 300.0, extra: str = ""):
 def start_cli(*args, env=None, cwd=None) -> subprocess.Popen:
     """``scatter-pop ARGS`` as a subprocess in its own process group (stdout/stderr piped)."""
     full_env = dict(os.environ, **(env or {}))
-    return subprocess.Popen([SCATTER_POP, *map(str, args)], stdout=subprocess.PIPE,
-                            stderr=subprocess.PIPE, text=True, env=full_env, cwd=cwd,
-                            start_new_session=True)
+    return subprocess.Popen(
+        [SCATTER_POP, *map(str, args)],
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        text=True,
+        env=full_env,
+        cwd=cwd,
+        start_new_session=True,
+    )
 
 
 def run_cli(*args, env=None, timeout=120.0) -> subprocess.CompletedProcess:
@@ -154,9 +175,14 @@ def ensure_program(program: str, package: str) -> str:
         env = dict(os.environ, DEBIAN_FRONTEND="noninteractive")
         cmd = ["apt-get", "-o", "DPkg::Lock::Timeout=300", "install", "-y", "--no-install-recommends", package]
         proc = subprocess.run(cmd, capture_output=True, text=True, timeout=900, env=env)
-        if proc.returncode != 0:                 # usually no package lists yet
-            subprocess.run(["apt-get", "-o", "DPkg::Lock::Timeout=300", "update"], capture_output=True,
-                           text=True, timeout=900, env=env)
+        if proc.returncode != 0:  # usually no package lists yet
+            subprocess.run(
+                ["apt-get", "-o", "DPkg::Lock::Timeout=300", "update"],
+                capture_output=True,
+                text=True,
+                timeout=900,
+                env=env,
+            )
             proc = subprocess.run(cmd, capture_output=True, text=True, timeout=900, env=env)
         found = shutil.which(program)
         if not found:

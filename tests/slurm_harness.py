@@ -36,12 +36,10 @@ from pathlib import Path
 
 import pytest
 
-__all__ = ["HarnessError", "SlurmHarness", "slurm", "squeue_jobs", "wait_for_no_jobs",
-           "PARTITION", "ensure_installed"]
+__all__ = ["HarnessError", "SlurmHarness", "slurm", "squeue_jobs", "wait_for_no_jobs", "PARTITION", "ensure_installed"]
 
 PACKAGES = ("slurm-wlm", "munge", "slurm-client", "slurm-wlm-torque")
-PROGRAMS = ("munged", "slurmctld", "slurmd", "sbatch", "squeue", "scancel", "sinfo",
-            "qsub", "qstat", "qdel")
+PROGRAMS = ("munged", "slurmctld", "slurmd", "sbatch", "squeue", "scancel", "sinfo", "qsub", "qstat", "qdel")
 SBIN = ("/usr/sbin", "/usr/bin", "/sbin", "/bin")
 CONF_PATH = Path("/etc/slurm/slurm.conf")
 MARKER = "# written by scatter_pop tests/slurm_harness.py; removed when the tests end"
@@ -73,21 +71,23 @@ def ensure_installed() -> None:
     if not missing:
         return
     if os.geteuid() != 0:
-        raise HarnessError(f"SLURM programs missing ({', '.join(missing)}) and not root, "
-                           "so cannot apt-get install " + " ".join(PACKAGES))
+        raise HarnessError(
+            f"SLURM programs missing ({', '.join(missing)}) and not root, "
+            "so cannot apt-get install " + " ".join(PACKAGES)
+        )
     if _which("apt-get") is None:
         raise HarnessError("SLURM programs missing and there is no apt-get to install them")
     env = dict(os.environ, DEBIAN_FRONTEND="noninteractive")
     install = ["apt-get", "install", "-y", "--no-install-recommends", *PACKAGES]
     proc = subprocess.run(install, capture_output=True, text=True, timeout=600, env=env)
     if proc.returncode != 0:  # usually no package lists yet: update once and retry
-        subprocess.run(["apt-get", "update"], capture_output=True, text=True, timeout=600,
-                       env=env)
+        subprocess.run(["apt-get", "update"], capture_output=True, text=True, timeout=600, env=env)
         proc = subprocess.run(install, capture_output=True, text=True, timeout=600, env=env)
     if proc.returncode != 0:
         tail = " | ".join(proc.stderr.strip().splitlines()[-3:])
-        raise HarnessError(f"SLURM cannot be installed (apt-get install {' '.join(PACKAGES)} "
-                           f"exited with {proc.returncode}): {tail}")
+        raise HarnessError(
+            f"SLURM cannot be installed (apt-get install {' '.join(PACKAGES)} exited with {proc.returncode}): {tail}"
+        )
     missing = [p for p in PROGRAMS if _which(p) is None]
     if missing:
         raise HarnessError(f"installed {' '.join(PACKAGES)} but {', '.join(missing)} not found")
@@ -141,8 +141,8 @@ def _process_name(pid: int) -> str | None:
         stat = Path(f"/proc/{pid}/stat").read_text()
     except OSError:
         return None
-    name = stat[stat.index("(") + 1:stat.rindex(")")]
-    state = stat[stat.rindex(")") + 2:].split()[0]
+    name = stat[stat.index("(") + 1 : stat.rindex(")")]
+    state = stat[stat.rindex(")") + 2 :].split()[0]
     return None if state in ("Z", "X") else name
 
 
@@ -194,7 +194,7 @@ class SlurmHarness:
         self._lock = None
 
     # -- set-up ---------------------------------------------------------------------------
-    def start(self, timeout: float = 60.0) -> "SlurmHarness":
+    def start(self, timeout: float = 60.0) -> SlurmHarness:
         if os.geteuid() != 0:
             raise HarnessError("starting SLURM daemons needs root")
         ensure_installed()
@@ -220,9 +220,11 @@ class SlurmHarness:
                 return
             except BlockingIOError:
                 if time.monotonic() > deadline:
-                    raise HarnessError("another test session holds the SLURM harness lock "
-                                       f"({STATE_DIR / 'lock'}) for more than "
-                                       f"{LOCK_WAIT_SECONDS:.0f} s") from None
+                    raise HarnessError(
+                        "another test session holds the SLURM harness lock "
+                        f"({STATE_DIR / 'lock'}) for more than "
+                        f"{LOCK_WAIT_SECONDS:.0f} s"
+                    ) from None
                 time.sleep(1.0)
 
     def _stop_stale(self) -> None:
@@ -237,30 +239,35 @@ class SlurmHarness:
         for name in ("slurmctld", "slurmd", "munged"):
             pids = _running(name)
             if pids:
-                raise HarnessError(f"a {name} not started by this harness is running "
-                                   f"(pid {pids[0]}); stop it before running the SLURM tests")
+                raise HarnessError(
+                    f"a {name} not started by this harness is running "
+                    f"(pid {pids[0]}); stop it before running the SLURM tests"
+                )
 
     def _write_conf(self) -> None:
         if CONF_PATH.exists() and MARKER not in CONF_PATH.read_text():
-            raise HarnessError(f"{CONF_PATH} exists and was not written by this harness; "
-                               "refusing to overwrite a real SLURM configuration")
+            raise HarnessError(
+                f"{CONF_PATH} exists and was not written by this harness; "
+                "refusing to overwrite a real SLURM configuration"
+            )
         self.host = socket.gethostname().split(".")[0]
         node, self.cpus, memory = node_resources()
         if node != self.host:
-            raise HarnessError(f"`slurmd -C` names the node {node!r}, `hostname -s` is "
-                               f"{self.host!r}; SLURM needs them equal")
+            raise HarnessError(
+                f"`slurmd -C` names the node {node!r}, `hostname -s` is {self.host!r}; SLURM needs them equal"
+            )
         try:
             socket.gethostbyname(self.host)
         except OSError as exc:
-            raise HarnessError(f"the host name {self.host!r} does not resolve "
-                               "(add it to /etc/hosts)") from exc
+            raise HarnessError(f"the host name {self.host!r} does not resolve (add it to /etc/hosts)") from exc
         CONF_PATH.parent.mkdir(parents=True, exist_ok=True)
         CONF_PATH.write_text(slurm_conf(self.host, self.cpus, memory))
 
     def _spawn(self, name: str, cmd: list[str], **kwargs) -> None:
         out = open(self.workdir / f"{name}.out", "w")
-        self.procs[name] = subprocess.Popen(cmd, stdout=out, stderr=subprocess.STDOUT,
-                                            stdin=subprocess.DEVNULL, **kwargs)
+        self.procs[name] = subprocess.Popen(
+            cmd, stdout=out, stderr=subprocess.STDOUT, stdin=subprocess.DEVNULL, **kwargs
+        )
         out.close()
         with open(STATE_DIR / "pids", "a") as f:
             f.write(f"{name} {self.procs[name].pid}\n")
@@ -272,8 +279,9 @@ class SlurmHarness:
         run_dir.chmod(0o755)
         if not Path("/etc/munge/munge.key").exists():
             _run(["runuser", "-u", "munge", "--", _which("mungekey") or "mungekey", "--create"])
-        self._spawn("munged", [_which("munged"), "--foreground", "--force"],
-                    user="munge", group="munge", extra_groups=[])
+        self._spawn(
+            "munged", [_which("munged"), "--foreground", "--force"], user="munge", group="munge", extra_groups=[]
+        )
         self._wait(lambda: Path("/run/munge/munge.socket.2").exists(), 10.0, "munged socket")
 
     def _start_slurm_daemons(self) -> None:
@@ -302,8 +310,7 @@ class SlurmHarness:
         return proc.stdout.strip() if proc.returncode == 0 else ""
 
     def _wait_idle(self, timeout: float) -> None:
-        self._wait(lambda: self._node_state().startswith("idle"), timeout,
-                   f"node {self.host} to become idle in sinfo")
+        self._wait(lambda: self._node_state().startswith("idle"), timeout, f"node {self.host} to become idle in sinfo")
 
     # -- tear-down ------------------------------------------------------------------------
     def cancel_all_jobs(self) -> None:

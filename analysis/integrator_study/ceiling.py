@@ -37,8 +37,8 @@ import time
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 
-from drivers import _Events, _integrate_to, run_fixed   # noqa: E402
-from systems import build_sim, draw_system                # noqa: E402
+from drivers import _Events, _integrate_to, run_fixed  # noqa: E402
+from systems import build_sim, draw_system  # noqa: E402
 
 N_STEPS = (30, 50, 100)
 K_HILL = (1.0, 2.0, 3.0)
@@ -109,8 +109,8 @@ def geometry(planets, seed, t_end, sample):
                 oj = ps[j].orbit(primary=star)
                 a_mean = 0.5 * (abs(oi.a) + abs(oj.a))
                 r_h = ((ps[i].m + ps[j].m) / (3.0 * star.m)) ** (1.0 / 3.0) * a_mean
-                d = (ps[i] - ps[j])
-                sep = min(sep, math.sqrt(d.x ** 2 + d.y ** 2 + d.z ** 2) / r_h)
+                d = ps[i] - ps[j]
+                sep = min(sep, math.sqrt(d.x**2 + d.y**2 + d.z**2) / r_h)
         out.append((p_in, sep))
     return out
 
@@ -136,15 +136,21 @@ def main(argv=None):
         for seed in seeds:
             planets = draw_system(seed)
             ref = run_fixed(build_sim(planets, rand_seed=seed + 1), args.t_end, "ias15")
-            bs = run_fixed(build_sim(planets, rand_seed=seed + 1), args.t_end, "bs",
-                           eps_rel=1e-10, eps_abs=1e-10)
+            bs = run_fixed(build_sim(planets, rand_seed=seed + 1), args.t_end, "bs", eps_rel=1e-10, eps_abs=1e-10)
             us_wh = wh_step_cost(planets, seed)
             us_sw = switch_cost(planets, seed)
             geo = geometry(planets, seed, args.t_end, args.sample)
             dt = args.sample
             p_in = sorted(g[0] for g in geo)
-            row = [seed, args.t_end, f"{ref.cpu:.4f}", ref.steps, f"{bs.cpu:.4f}", f"{us_wh * 1e6:.4f}",
-                   f"{p_in[len(p_in) // 2]:.3f}"]
+            row = [
+                seed,
+                args.t_end,
+                f"{ref.cpu:.4f}",
+                ref.steps,
+                f"{bs.cpu:.4f}",
+                f"{us_wh * 1e6:.4f}",
+                f"{p_in[len(p_in) // 2]:.3f}",
+            ]
             f_enc = {k: sum(1 for g in geo if g[1] < k) / len(geo) for k in K_HILL}
             row += [f"{f_enc[k]:.4f}" for k in K_HILL]
             wh_cost = {n: sum(dt * n / g[0] for g in geo if math.isfinite(g[0])) * us_wh for n in N_STEPS}

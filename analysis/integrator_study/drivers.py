@@ -31,7 +31,7 @@ import rebound
 
 __all__ = ["Result", "run_method", "METHODS"]
 
-EJECT_R = 1000.0          # AU from the COM
+EJECT_R = 1000.0  # AU from the COM
 
 
 @dataclass
@@ -40,11 +40,11 @@ class Result:
     energy_error: float
     t_end: float
     n_left: int
-    fates: dict = field(default_factory=dict)       # name -> (fate, t)
-    final: dict = field(default_factory=dict)       # name -> (a, e, inc, q) astrocentric
+    fates: dict = field(default_factory=dict)  # name -> (fate, t)
+    final: dict = field(default_factory=dict)  # name -> (a, e, inc, q) astrocentric
     steps: int = 0
     switches: int = 0
-    wh_fraction: float = float("nan")               # fraction of simulated time in WHFast
+    wh_fraction: float = float("nan")  # fraction of simulated time in WHFast
 
 
 class _Events:
@@ -107,8 +107,15 @@ def _finish(sim, ev, e0, cpu, extra):
     for p in sim.particles[1:]:
         o = p.orbit(primary=star)
         final[p.name] = (o.a, o.e, o.inc, o.a * (1 - o.e))
-    return Result(cpu=cpu, energy_error=abs((sim.energy() - e0) / e0), t_end=sim.t,
-                  n_left=sim.N - 1, fates=dict(ev.fates), final=final, **extra)
+    return Result(
+        cpu=cpu,
+        energy_error=abs((sim.energy() - e0) / e0),
+        t_end=sim.t,
+        n_left=sim.N - 1,
+        fates=dict(ev.fates),
+        final=final,
+        **extra,
+    )
 
 
 def _integrate_to(sim, ev, t):
@@ -131,7 +138,7 @@ def _periods(sim):
         qmin = min(qmin, q)
         if o.a > 0 and o.e < 1:
             pmin = min(pmin, o.P)
-        taumin = min(taumin, math.sqrt(q ** 3 / (gm * (1 + o.e))))
+        taumin = min(taumin, math.sqrt(q**3 / (gm * (1 + o.e))))
     return pmin, taumin, qmin
 
 
@@ -150,8 +157,7 @@ def run_fixed(sim, t_end, integrator, chunk=1000.0, **opts):
     return _finish(sim, ev, e0, time.process_time() - c0, dict(steps=sim.steps_done))
 
 
-def run_trace(sim, t_end, n_per=50, eta=1.0, peri_mode="FULL_BS", r_crit=3.0, rechoose=1000.0,
-              tau_eta=None):
+def run_trace(sim, t_end, n_per=50, eta=1.0, peri_mode="FULL_BS", r_crit=3.0, rechoose=1000.0, tau_eta=None):
     ev = _Events(sim)
     sim.integrator = "trace"
     sim.integrator.peri_crit_eta = eta
@@ -188,9 +194,22 @@ def _sort_jacobi(sim):
         sim.add(p)
 
 
-def run_hybrid(sim, t_end, n_per=30.0, eta=1.5, f_enter=3.0, f_exit=4.0, q_danger=0.1,
-               wh_steps=2000, ias_orbits=0.5, ias_eps=1e-9, corrector=0, safe_mode=1, enc="ias15",
-               bs_eps=1e-10):
+def run_hybrid(
+    sim,
+    t_end,
+    n_per=30.0,
+    eta=1.5,
+    f_enter=3.0,
+    f_exit=4.0,
+    q_danger=0.1,
+    wh_steps=2000,
+    ias_orbits=0.5,
+    ias_eps=1e-9,
+    corrector=0,
+    safe_mode=1,
+    enc="ias15",
+    bs_eps=1e-10,
+):
     ev = _Events(sim)
     e0 = sim.energy()
     c0 = time.process_time()
@@ -211,8 +230,7 @@ def run_hybrid(sim, t_end, n_per=30.0, eta=1.5, f_enter=3.0, f_exit=4.0, q_dange
             _sort_jacobi(sim)
             star = sim.particles["star"]
             # detection radii: planet f/2 * (R_H,i) doubled -> pair sum f*(R_H,i+R_H,j)/... ;
-            rdet = {p.name: f_enter * _hill_scale(p, star) * (p.m / (3 * m_star)) ** (1 / 3)
-                    for p in sim.particles[1:]}
+            rdet = {p.name: f_enter * _hill_scale(p, star) * (p.m / (3 * m_star)) ** (1 / 3) for p in sim.particles[1:]}
             rmin = min(rdet.values())
             star.r = q_danger - rmin
             for p in sim.particles[1:]:
@@ -246,7 +264,7 @@ def run_hybrid(sim, t_end, n_per=30.0, eta=1.5, f_enter=3.0, f_exit=4.0, q_dange
                 mode = "ias15"
                 switches += 1
         else:
-            sim.gravity_ignore = 0      # WHFast (Jacobi) leaves 1 behind; BS would then drop star terms
+            sim.gravity_ignore = 0  # WHFast (Jacobi) leaves 1 behind; BS would then drop star terms
             if enc == "bs":
                 sim.integrator = "bs"
                 sim.integrator.eps_rel = bs_eps
@@ -266,8 +284,13 @@ def run_hybrid(sim, t_end, n_per=30.0, eta=1.5, f_enter=3.0, f_exit=4.0, q_dange
             elif sim.N == 2 and _periods(sim)[2] >= q_danger:
                 mode = "wh"
                 switches += 1
-    return _finish(sim, ev, e0, time.process_time() - c0,
-                   dict(steps=steps, switches=switches, wh_fraction=wh_time / max(sim.t, 1e-300)))
+    return _finish(
+        sim,
+        ev,
+        e0,
+        time.process_time() - c0,
+        dict(steps=steps, switches=switches, wh_fraction=wh_time / max(sim.t, 1e-300)),
+    )
 
 
 def _hill_scale(p, star):
@@ -293,8 +316,9 @@ def _separated(sim, f, m_star):
 
 METHODS = {
     "ias15": lambda sim, T, eps=1e-9, mode="PRS23": run_fixed(sim, T, "ias15", epsilon=eps, adaptive_mode=mode),
-    "bs": lambda sim, T, eps=1e-10, eps_abs=None: run_fixed(sim, T, "bs", eps_rel=eps,
-                                                              eps_abs=eps if eps_abs is None else eps_abs),
+    "bs": lambda sim, T, eps=1e-10, eps_abs=None: run_fixed(
+        sim, T, "bs", eps_rel=eps, eps_abs=eps if eps_abs is None else eps_abs
+    ),
     "trace": run_trace,
     "hybrid": run_hybrid,
 }

@@ -19,8 +19,8 @@ import time
 import rebound
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
-from drivers import _Events          # noqa: E402
-from systems import build_sim, draw_system   # noqa: E402
+from drivers import _Events  # noqa: E402
+from systems import build_sim, draw_system  # noqa: E402
 
 
 def geometry(sim):
@@ -68,8 +68,19 @@ def main(argv=None):
                     except rebound.Escape:
                         ev.handle_escape()
                 q, gap, a_in, e_in = geometry(sim)
-                w.writerow([seed, f"{sim.t:.1f}", f"{time.process_time() - c0:.4f}", sim.steps_done - s0,
-                            sim.N - 1, f"{q:.4f}", f"{gap:.3f}", f"{a_in:.4f}", f"{e_in:.4f}"])
+                w.writerow(
+                    [
+                        seed,
+                        f"{sim.t:.1f}",
+                        f"{time.process_time() - c0:.4f}",
+                        sim.steps_done - s0,
+                        sim.N - 1,
+                        f"{q:.4f}",
+                        f"{gap:.3f}",
+                        f"{a_in:.4f}",
+                        f"{e_in:.4f}",
+                    ]
+                )
             fh.flush()
             print("seed", seed, "done at", sim.t, "planets", sim.N - 1, flush=True)
 

@@ -18,7 +18,7 @@ import rebound
 from scatter_pop.constants import G_AU_YR_MSUN, MJUP_MSUN
 
 T_END = 2000.0
-P_IN = 2.3 ** 1.5
+P_IN = 2.3**1.5
 
 
 def make():
@@ -69,8 +69,12 @@ def main():
     confs = [dict(kind="ias15"), dict(kind="bs", eps=1e-10), dict(kind="bs", eps=1e-8)]
     confs += [dict(kind="whj", n=n, corrector=c) for n in (20, 50, 100, 200) for c in (0, 17)]
     confs += [dict(kind="whdh", n=n) for n in (50, 200, 1000)]
-    confs += [dict(kind="trace", n=n, eta=eta, peri_mode=pm) for n in (50, 100) for eta in (1.0, 0.3, 0.15)
-              for pm in ("PARTIAL_BS", "FULL_BS")]
+    confs += [
+        dict(kind="trace", n=n, eta=eta, peri_mode=pm)
+        for n in (50, 100)
+        for eta in (1.0, 0.3, 0.15)
+        for pm in ("PARTIAL_BS", "FULL_BS")
+    ]
     out = os.path.join(os.path.dirname(os.path.abspath(__file__)), "quiet_phase.csv")
     with open(out, "w", newline="") as fh:
         w = csv.writer(fh)

@@ -16,8 +16,8 @@ import sys
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 
-from drivers import run_method          # noqa: E402
-from systems import build_sim, draw_system   # noqa: E402
+from drivers import run_method  # noqa: E402
+from systems import build_sim, draw_system  # noqa: E402
 
 
 def parse_method(text):
@@ -47,21 +47,54 @@ def main(argv=None):
     with open(args.out, "a", newline="") as fh:
         w = csv.writer(fh)
         if new:
-            w.writerow(["seed", "method", "t_end", "cpu_s", "energy_error", "n_left", "n_ejected",
-                        "n_merged", "n_hit_star", "steps", "switches", "wh_fraction", "final", "fates"])
+            w.writerow(
+                [
+                    "seed",
+                    "method",
+                    "t_end",
+                    "cpu_s",
+                    "energy_error",
+                    "n_left",
+                    "n_ejected",
+                    "n_merged",
+                    "n_hit_star",
+                    "steps",
+                    "switches",
+                    "wh_fraction",
+                    "final",
+                    "fates",
+                ]
+            )
         for seed in seeds:
             planets = draw_system(seed, spacing=args.spacing)
             for label, name, kw in methods:
                 sim = build_sim(planets, rand_seed=seed + 1)
                 r = run_method(name, sim, args.t_end, **kw)
                 kinds = [f for f, _ in r.fates.values()]
-                w.writerow([seed, label, args.t_end, f"{r.cpu:.4f}", f"{r.energy_error:.3e}", r.n_left,
-                            kinds.count("ejected"), kinds.count("merged"), kinds.count("hit_star"),
-                            r.steps, r.switches, f"{r.wh_fraction:.4f}", json.dumps(r.final),
-                            json.dumps(r.fates)])
+                w.writerow(
+                    [
+                        seed,
+                        label,
+                        args.t_end,
+                        f"{r.cpu:.4f}",
+                        f"{r.energy_error:.3e}",
+                        r.n_left,
+                        kinds.count("ejected"),
+                        kinds.count("merged"),
+                        kinds.count("hit_star"),
+                        r.steps,
+                        r.switches,
+                        f"{r.wh_fraction:.4f}",
+                        json.dumps(r.final),
+                        json.dumps(r.fates),
+                    ]
+                )
                 fh.flush()
-                print(f"seed {seed:3d} {label:40s} cpu {r.cpu:7.3f}s dE {r.energy_error:.2e} left {r.n_left} "
-                      f"fates {kinds} sw {r.switches} wh {r.wh_fraction:.3f}", flush=True)
+                print(
+                    f"seed {seed:3d} {label:40s} cpu {r.cpu:7.3f}s dE {r.energy_error:.2e} left {r.n_left} "
+                    f"fates {kinds} sw {r.switches} wh {r.wh_fraction:.3f}",
+                    flush=True,
+                )
 
 
 if __name__ == "__main__":

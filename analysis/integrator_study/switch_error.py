@@ -12,7 +12,7 @@ import os
 import sys
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
-from systems import build_sim, draw_system   # noqa: E402
+from systems import build_sim, draw_system  # noqa: E402
 
 T_END = 1500.0
 
@@ -41,8 +41,17 @@ def main():
     out = os.path.join(os.path.dirname(os.path.abspath(__file__)), "switch_error.csv")
     with open(out, "w", newline="") as fh:
         w = csv.writer(fh)
-        w.writerow(["spacing_hill", "steps_per_orbit", "corrector", "switches", "dE_switching", "dE_whfast_only",
-                    "dE_per_switch"])
+        w.writerow(
+            [
+                "spacing_hill",
+                "steps_per_orbit",
+                "corrector",
+                "switches",
+                "dE_switching",
+                "dE_whfast_only",
+                "dE_per_switch",
+            ]
+        )
         for spacing in (6.0, 4.5):
             for n, corr in ((100, 17), (100, 0), (30, 17)):
                 de_sw, k = run(spacing, n, corr, 20.0)

@@ -33,12 +33,19 @@ def draw_system(seed: int, spacing: float = 3.0, a_inner: float = 5.0, n: int = 
         a.append(a[-1] * (1.0 + spacing * k / 2.0) / (1.0 - spacing * k / 2.0))
     planets = []
     for i in range(n):
-        planets.append(dict(
-            m=m, r=radius, a=a[i],
-            e=0.01 * math.sqrt(-2.0 * math.log(1.0 - rng.random())),
-            inc=math.radians(0.5) * math.sqrt(-2.0 * math.log(1.0 - rng.random())),
-            Omega=2 * math.pi * rng.random(), omega=2 * math.pi * rng.random(),
-            M=2 * math.pi * rng.random(), name=NAMES[i]))
+        planets.append(
+            dict(
+                m=m,
+                r=radius,
+                a=a[i],
+                e=0.01 * math.sqrt(-2.0 * math.log(1.0 - rng.random())),
+                inc=math.radians(0.5) * math.sqrt(-2.0 * math.log(1.0 - rng.random())),
+                Omega=2 * math.pi * rng.random(),
+                omega=2 * math.pi * rng.random(),
+                M=2 * math.pi * rng.random(),
+                name=NAMES[i],
+            )
+        )
     return planets
 
 
@@ -50,7 +57,17 @@ def build_sim(planets: list[dict], rand_seed: int = 1) -> rebound.Simulation:
     sim.add(m=1.0, r=R_SUN_AU, name="star")
     star = sim.particles[0]
     for p in planets:
-        sim.add(m=p["m"], r=p["r"], a=p["a"], e=p["e"], inc=p["inc"], Omega=p["Omega"],
-                omega=p["omega"], M=p["M"], primary=star, name=p["name"])
+        sim.add(
+            m=p["m"],
+            r=p["r"],
+            a=p["a"],
+            e=p["e"],
+            inc=p["inc"],
+            Omega=p["Omega"],
+            omega=p["omega"],
+            M=p["M"],
+            primary=star,
+            name=p["name"],
+        )
     sim.move_to_com()
     return sim

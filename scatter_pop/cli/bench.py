@@ -11,29 +11,50 @@ __all__ = ["configure", "execute"]
 
 
 def configure(parser) -> None:
-    parser.add_argument("--quick", action="store_true",
-                        help=f"smoke run: {QUICK['systems']} systems to {QUICK['end_time']:g} yr, in this process")
-    parser.add_argument("--systems", type=int, default=None,
-                        help=f"systems per path (full mode: {FULL['systems']})")
-    parser.add_argument("--end-time", type=float, default=None,
-                        help=f"end time in yr (full mode: {FULL['end_time']:g})")
-    parser.add_argument("--workers", type=int, default=None,
-                        help="worker processes (0: this process; full mode: 1, quick: 0)")
-    parser.add_argument("--paths", default=None,
-                        help="comma-separated paths besides the reference (default: all): "
-                             "default, ias15, bs, trace, mercurius")
-    parser.add_argument("--permutations", type=int, default=None,
-                        help=f"permutations of the Anderson-Darling p-values (full: {FULL['permutations']})")
-    parser.add_argument("--scaling-systems", type=int, default=None,
-                        help=f"systems of the 1-vs-2-worker efficiency run (full: {FULL['scaling_systems']}, "
-                             "0: skip)")
+    parser.add_argument(
+        "--quick",
+        action="store_true",
+        help=f"smoke run: {QUICK['systems']} systems to {QUICK['end_time']:g} yr, in this process",
+    )
+    parser.add_argument("--systems", type=int, default=None, help=f"systems per path (full mode: {FULL['systems']})")
+    parser.add_argument(
+        "--end-time", type=float, default=None, help=f"end time in yr (full mode: {FULL['end_time']:g})"
+    )
+    parser.add_argument(
+        "--workers", type=int, default=None, help="worker processes (0: this process; full mode: 1, quick: 0)"
+    )
+    parser.add_argument(
+        "--paths",
+        default=None,
+        help="comma-separated paths besides the reference (default: all): default, ias15, bs, trace, mercurius",
+    )
+    parser.add_argument(
+        "--permutations",
+        type=int,
+        default=None,
+        help=f"permutations of the Anderson-Darling p-values (full: {FULL['permutations']})",
+    )
+    parser.add_argument(
+        "--scaling-systems",
+        type=int,
+        default=None,
+        help=f"systems of the 1-vs-2-worker efficiency run (full: {FULL['scaling_systems']}, 0: skip)",
+    )
     parser.add_argument("--seed", type=int, default=20240611, help="run seed of the benchmark systems")
     parser.add_argument("--json", default=None, metavar="PATH", help="write the JSON record here")
 
 
 def execute(args) -> int:
     paths = [p.strip() for p in args.paths.split(",") if p.strip()] if args.paths else None
-    run_benchmark(quick=args.quick, systems=args.systems, end_time=args.end_time, workers=args.workers,
-                  paths=paths, permutations=args.permutations, scaling_systems=args.scaling_systems,
-                  json_path=args.json, seed=args.seed)
+    run_benchmark(
+        quick=args.quick,
+        systems=args.systems,
+        end_time=args.end_time,
+        workers=args.workers,
+        paths=paths,
+        permutations=args.permutations,
+        scaling_systems=args.scaling_systems,
+        json_path=args.json,
+        seed=args.seed,
+    )
     return 0

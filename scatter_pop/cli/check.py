@@ -27,8 +27,9 @@ def execute(args) -> int:
     print(f"spec {spec.source}: valid")
     print(f"  run        {spec.run.name!r}, seed {spec.run.seed}, {spec.run.systems} systems")
     print(f"  star       {spec.star.mass:g} M_sun, {spec.star.radius / R_SUN_AU:g} R_sun")
-    masses = ", ".join(f"{d.kind} {d.low / MJUP_MSUN:g}" + (f"-{d.high / MJUP_MSUN:g}" if d.kind != "fixed" else "")
-                       for d in p.masses)
+    masses = ", ".join(
+        f"{d.kind} {d.low / MJUP_MSUN:g}" + (f"-{d.high / MJUP_MSUN:g}" if d.kind != "fixed" else "") for d in p.masses
+    )
     print(f"  planets    {p.count}; masses [M_J]: {masses}")
     if p.a_list is not None:
         print(f"             a = {', '.join(f'{a:g}' for a in p.a_list)} AU")

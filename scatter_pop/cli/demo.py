@@ -49,6 +49,7 @@ def load_demo_target(path):
     """
     from scatter_pop.survey.forward_model import RVSurvey
     from scatter_pop.target.planet import target_from_flags
+
     path = Path(path)
     try:
         doc = tomllib.loads(path.read_text(encoding="utf-8"))
@@ -69,9 +70,11 @@ def load_demo_target(path):
         if key not in table:
             raise InputError(f"{path}: target.{key} is missing")
     try:
-        target = target_from_flags(**{k: table[k] for k in ("e", "e_err", "a", "a_err", "msini",
-                                                             "msini_err")},
-                                   mstar=table.get("mstar"), name=str(table.get("name", "target")))
+        target = target_from_flags(
+            **{k: table[k] for k in ("e", "e_err", "a", "a_err", "msini", "msini_err")},
+            mstar=table.get("mstar"),
+            name=str(table.get("name", "target")),
+        )
     except InputError as exc:
         raise InputError(f"{path}: target: {exc}") from None
     survey = None
@@ -80,17 +83,30 @@ def load_demo_target(path):
         if not isinstance(s, dict) or set(s) != set(_SURVEY_KEYS):
             raise InputError(f"{path}: [survey] must hold exactly k_min (m/s, >= 0) and baseline (yr, > 0)")
         k_min, baseline = s["k_min"], s["baseline"]
-        if not all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in (k_min, baseline)) \
-                or k_min < 0 or baseline <= 0:
-            raise InputError(f"{path}: [survey] k_min = {k_min!r}, baseline = {baseline!r}: need k_min >= 0 "
-                             f"m/s and baseline > 0 yr")
+        if (
+            not all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in (k_min, baseline))
+            or k_min < 0
+            or baseline <= 0
+        ):
+            raise InputError(
+                f"{path}: [survey] k_min = {k_min!r}, baseline = {baseline!r}: need k_min >= 0 m/s and baseline > 0 yr"
+            )
         survey = RVSurvey(float(k_min), float(baseline))
     return target, survey, bool(table.get("invented", False))
 
 
-def run_demo(spec_path, out, *, target_path=None, observed=DEFAULT_OBSERVED, workers=None,
-             formats=("pdf", "png"), permutations: int = 2000, spread_draws: int = 100,
-             log=print) -> dict:
+def run_demo(
+    spec_path,
+    out,
+    *,
+    target_path=None,
+    observed=DEFAULT_OBSERVED,
+    workers=None,
+    formats=("pdf", "png"),
+    permutations: int = 2000,
+    spread_draws: int = 100,
+    log=print,
+) -> dict:
     """Run the whole demo pipeline; return the paths written (see the module docstring).
 
     Parameters
@@ -112,31 +128,35 @@ def run_demo(spec_path, out, *, target_path=None, observed=DEFAULT_OBSERVED, wor
     log : callable
         Receives progress lines.
     """
-    from scatter_pop.survey.comparison import CompareOptions, compare
     from scatter_pop.ensemble.driver import run_ensemble
     from scatter_pop.paper.figure_set import FORMATS, write_figure_set
-    from scatter_pop.target.judgement import judge
-    from scatter_pop.survey.catalogue import load_catalogue
-    from scatter_pop.survey.report import render
     from scatter_pop.spec.reader import load_spec
     from scatter_pop.store.run_folder import atomic_write_text
+    from scatter_pop.survey.catalogue import load_catalogue
+    from scatter_pop.survey.comparison import CompareOptions, compare
+    from scatter_pop.survey.report import render
+    from scatter_pop.target.judgement import judge
     from scatter_pop.target.verdict import render_json, render_text, verdict_sentence
 
     bad = [f for f in formats if f not in FORMATS]
     if not formats or bad:
         raise InputError(f"--format {','.join(formats)!r}: allowed formats: {', '.join(FORMATS)}")
     spec = load_spec(spec_path)
-    target_path = Path(target_path) if target_path else Path(spec_path).with_name(
-        Path(spec_path).stem + "_target.toml")
+    target_path = Path(target_path) if target_path else Path(spec_path).with_name(Path(spec_path).stem + "_target.toml")
     target, survey, invented = load_demo_target(target_path)
-    observed_sample = load_catalogue(observed)              # checked before the long part
+    observed_sample = load_catalogue(observed)  # checked before the long part
     out = Path(out)
 
     ds = run_ensemble(spec, out=out, workers=workers, log=log)
     label = spec.run.name
-    options = CompareOptions(survey=survey, permutations=permutations, uncertainty_draws=spread_draws,
-                             bootstrap_draws=spread_draws, spread_permutations=spread_draws,
-                             seed=spec.run.seed)
+    options = CompareOptions(
+        survey=survey,
+        permutations=permutations,
+        uncertainty_draws=spread_draws,
+        bootstrap_draws=spread_draws,
+        spread_permutations=spread_draws,
+        seed=spec.run.seed,
+    )
     report = compare([(label, [ds])], observed_sample, options)
     report.sources[label] = str(out)
     paths = {"ensemble": out / "ensemble.nc"}
@@ -149,8 +169,7 @@ def run_demo(spec_path, out, *, target_path=None, observed=DEFAULT_OBSERVED, wor
     atomic_write_text(render_text(result), paths["verdict_txt"])
     atomic_write_text(render_json(result), paths["verdict_json"])
 
-    figs = write_figure_set([(label, ds)], out / "figures", comparison=report, target=target,
-                            formats=formats)
+    figs = write_figure_set([(label, ds)], out / "figures", comparison=report, target=target, formats=formats)
     paths["figures"] = out / "figures"
     paths["table_tex"] = figs.latex
 
@@ -159,11 +178,16 @@ def run_demo(spec_path, out, *, target_path=None, observed=DEFAULT_OBSERVED, wor
     log("")
     log(f"demo target: {target.name}{note}")
     floor = 1.0 / (row.test.permutations + 1)
-    ad_p = (f"p <= {floor:.2g}, the permutation floor" if row.test.ad_pvalue <= floor * (1 + 1e-9)
-            else f"p = {row.test.ad_pvalue:.3g}")
-    log(f"survivors vs {observed_sample.e.size} observed eccentricities: KS D = {row.test.ks_statistic:.3f} "
+    ad_p = (
+        f"p <= {floor:.2g}, the permutation floor"
+        if row.test.ad_pvalue <= floor * (1 + 1e-9)
+        else f"p = {row.test.ad_pvalue:.3g}"
+    )
+    log(
+        f"survivors vs {observed_sample.e.size} observed eccentricities: KS D = {row.test.ks_statistic:.3f} "
         f"(p = {row.test.ks_pvalue:.3g}), AD T = {row.test.ad_statistic:.2f} ({ad_p}); "
-        f"n_sim = {row.test.n_x}")
+        f"n_sim = {row.test.n_x}"
+    )
     log("verdict: " + verdict_sentence(result.ensembles[0], result))
     log("")
     log(f"ensemble:         {paths['ensemble']}")
@@ -176,8 +200,10 @@ def run_demo(spec_path, out, *, target_path=None, observed=DEFAULT_OBSERVED, wor
 
 def main(argv=None) -> int:
     """Command line of the demo; returns the exit status."""
-    parser = argparse.ArgumentParser(prog="python -m scatter_pop.cli.demo",
-                                     description="Run the demo end to end (ensemble, comparison, verdict, figures).")
+    parser = argparse.ArgumentParser(
+        prog="python -m scatter_pop.cli.demo",
+        description="Run the demo end to end (ensemble, comparison, verdict, figures).",
+    )
     parser.add_argument("spec", help="ensemble spec (TOML), e.g. runs/demo.toml")
     parser.add_argument("--out", required=True, help="run folder, e.g. runs/demo_out")
     parser.add_argument("--target", help="target file (default <spec stem>_target.toml beside the spec)")
@@ -186,6 +212,7 @@ def main(argv=None) -> int:
     parser.add_argument("--format", default="pdf,png", help="figure formats (default pdf,png)")
     args = parser.parse_args(argv)
     from scatter_pop.ensemble.stop_signals import stop_signals
+
     try:
         if args.workers is not None and args.workers < 1:
             raise InputError(f"--workers {args.workers}: must be >= 1")
@@ -193,8 +220,14 @@ def main(argv=None) -> int:
         # Ctrl-C and SIGTERM end the demo as they end `scatter-pop run`: at a safe point of the run
         # phase, one line, exit status 130 / 143; a second Ctrl-C does not wait for the clean-up
         with stop_signals("demo"):
-            run_demo(args.spec, args.out, target_path=args.target, observed=args.observed,
-                     workers=args.workers, formats=formats)
+            run_demo(
+                args.spec,
+                args.out,
+                target_path=args.target,
+                observed=args.observed,
+                workers=args.workers,
+                formats=formats,
+            )
     except InputError as exc:
         print(f"demo: error: {exc}", file=sys.stderr)
         return 2

@@ -20,24 +20,40 @@ __all__ = ["configure", "execute"]
 
 def configure(parser) -> None:
     from scatter_pop.paper.figure_set import FORMATS, WIDTHS
+
     parser.add_argument("dirs", nargs="+", metavar="DIR", help="run folders (each holding ensemble.nc)")
-    parser.add_argument("--observed", metavar="CSV",
-                        help="observed catalogue for the e CDF and the comparison statistics "
-                             "(default columns of the shipped observed_rv_giants.csv)")
-    parser.add_argument("--target", metavar="E,E_ERR,A,A_ERR",
-                        help="a target planet to mark: e, its error, a [AU], its error")
+    parser.add_argument(
+        "--observed",
+        metavar="CSV",
+        help="observed catalogue for the e CDF and the comparison statistics "
+        "(default columns of the shipped observed_rv_giants.csv)",
+    )
+    parser.add_argument(
+        "--target", metavar="E,E_ERR,A,A_ERR", help="a target planet to mark: e, its error, a [AU], its error"
+    )
     parser.add_argument("--target-name", default="target", help="its name in legends")
     parser.add_argument("--labels", metavar="A,B,...", help="names of the ensembles (default: folder names)")
-    parser.add_argument("--format", default="pdf", metavar="FMT,...",
-                        help=f"image formats, comma-separated, from {', '.join(FORMATS)} (default pdf)")
-    parser.add_argument("--width", default="auto", choices=WIDTHS,
-                        help="single (3.35 in) or double (7.1 in) column; auto: single for one panel")
+    parser.add_argument(
+        "--format",
+        default="pdf",
+        metavar="FMT,...",
+        help=f"image formats, comma-separated, from {', '.join(FORMATS)} (default pdf)",
+    )
+    parser.add_argument(
+        "--width",
+        default="auto",
+        choices=WIDTHS,
+        help="single (3.35 in) or double (7.1 in) column; auto: single for one panel",
+    )
     parser.add_argument("--out", metavar="FIGDIR", help="output folder (default <first DIR>/figures)")
     c = parser.add_argument_group("comparison sample (as in scatter-pop compare)")
     c.add_argument("--a-range", metavar="LOW,HIGH", help="semi-major axis cut [AU], both samples")
     c.add_argument("--mass-range", metavar="LOW,HIGH", help="m sin i cut [M_J], both samples")
-    c.add_argument("--rv-survey", metavar="K_MIN,BASELINE",
-                   help="keep simulated planets with K >= K_MIN [m/s] and P <= BASELINE [yr]")
+    c.add_argument(
+        "--rv-survey",
+        metavar="K_MIN,BASELINE",
+        help="keep simulated planets with K >= K_MIN [m/s] and P <= BASELINE [yr]",
+    )
     c.add_argument("--permutations", default="2000", help="permutations of the AD p-value (default 2000)")
     add_common_arguments(parser)
 
@@ -59,6 +75,7 @@ def _options(args):
     from scatter_pop.survey.comparison import CompareOptions
     from scatter_pop.survey.cuts import SampleCuts, check_range
     from scatter_pop.survey.forward_model import RVSurvey
+
     a = _pair(args.a_range, "--a-range", "LOW,HIGH in AU, e.g. 1,20")
     m = _pair(args.mass_range, "--mass-range", "LOW,HIGH in M_J, e.g. 0.3,15")
     k = _pair(args.rv_survey, "--rv-survey", "K_MIN [m/s],BASELINE [yr], e.g. 3,10")
@@ -72,11 +89,19 @@ def _options(args):
         raise InputError(f"--permutations {args.permutations!r}: must be an integer >= 1")
     cuts = SampleCuts(
         a=None if a is None else check_range(a[0], a[1], "--a-range"),
-        mass=None if m is None else check_range(m[0] * MJUP_MSUN, m[1] * MJUP_MSUN, "--mass-range"))
-    return CompareOptions(cuts=cuts, survey=None if k is None else RVSurvey(k[0], k[1]),
-                          energy_tolerance=args.energy_tolerance, include_capped=args.include_capped,
-                          permutations=permutations, uncertainty_draws=0, bootstrap_draws=0,
-                          references=(), seed=args.seed)
+        mass=None if m is None else check_range(m[0] * MJUP_MSUN, m[1] * MJUP_MSUN, "--mass-range"),
+    )
+    return CompareOptions(
+        cuts=cuts,
+        survey=None if k is None else RVSurvey(k[0], k[1]),
+        energy_tolerance=args.energy_tolerance,
+        include_capped=args.include_capped,
+        permutations=permutations,
+        uncertainty_draws=0,
+        bootstrap_draws=0,
+        references=(),
+        seed=args.seed,
+    )
 
 
 def execute(args) -> int:
@@ -89,24 +114,35 @@ def execute(args) -> int:
         raise InputError(f"--format {args.format!r}: allowed formats: {', '.join(FORMATS)} (comma-separated)")
     check_common(args)
     target = None if args.target is None else target_point_from_flag(args.target, args.target_name)
-    options = _options(args)          # checked even without --observed (then unused)
+    options = _options(args)  # checked even without --observed (then unused)
     runs = open_runs(args.dirs)
     if args.labels is not None:
         labels = [s.strip() for s in args.labels.split(",")]
         if len(labels) != len(runs) or len(set(labels)) != len(labels) or not all(labels):
-            raise InputError(f"--labels {args.labels!r}: must be {len(runs)} distinct non-empty names, "
-                             f"one per DIR, comma-separated")
+            raise InputError(
+                f"--labels {args.labels!r}: must be {len(runs)} distinct non-empty names, one per DIR, comma-separated"
+            )
         runs = [(lab, ds) for lab, (_, ds) in zip(labels, runs)]
     comparison = None
     if args.observed:
-        from scatter_pop.survey.comparison import compare
         from scatter_pop.survey.catalogue import load_catalogue
+        from scatter_pop.survey.comparison import compare
+
         observed = load_catalogue(args.observed, cuts=options.cuts)
         comparison = compare([(lab, [ds]) for lab, ds in runs], observed, options)
     out = Path(args.out) if args.out else Path(args.dirs[0]) / "figures"
-    result = write_figure_set(runs, out, comparison=comparison, target=target, formats=formats,
-                              width=args.width, confidence=args.confidence, method=args.interval,
-                              energy_tolerance=args.energy_tolerance, include_capped=args.include_capped)
+    result = write_figure_set(
+        runs,
+        out,
+        comparison=comparison,
+        target=target,
+        formats=formats,
+        width=args.width,
+        confidence=args.confidence,
+        method=args.interval,
+        energy_tolerance=args.energy_tolerance,
+        include_capped=args.include_capped,
+    )
     for f in result.figures:
         print(f"{f.name}: " + ", ".join(str(p) for p in f.images + f.tables))
     print(f"table: {result.latex}")

@@ -67,8 +67,7 @@ def main(argv: list[str] | None = None) -> int:
         print(f"scatter-pop {args.command}: error: {exc}", file=sys.stderr)
         return 2
     except KeyboardInterrupt:
-        print(f"scatter-pop {args.command}: interrupted; rerun the same command to resume",
-              file=sys.stderr)
+        print(f"scatter-pop {args.command}: interrupted; rerun the same command to resume", file=sys.stderr)
         return 130
 
 

@@ -10,34 +10,49 @@ __all__ = ["configure", "execute"]
 
 def configure(parser) -> None:
     parser.add_argument("spec", help="ensemble spec (TOML)")
-    parser.add_argument("--out", metavar="DIR",
-                        help="run folder (default: <folder of SPEC>/<run name>_out); rerunning the same "
-                             "command resumes there")
-    parser.add_argument("--workers", type=int, metavar="N",
-                        help="local worker processes (default: one per core), or for slurm/pbs the "
-                             "number of worker processes to keep")
-    parser.add_argument("--scheduler", metavar="ADDRESS",
-                        help="attach to a running Dask scheduler (tcp://host:port or a scheduler file)")
-    parser.add_argument("--cluster", metavar="FILE",
-                        help="TOML file with a [cluster] table used instead of the spec's")
-    parser.add_argument("--fresh", action="store_true",
-                        help="start over: move an existing run folder aside to <DIR>.replaced-<time>")
-    parser.add_argument("--extend", action="store_true",
-                        help="continue systems stopped by the wall-clock cap from their checkpoints")
-    parser.add_argument("--retry-failed", action="store_true",
-                        help="compute systems recorded as failed again")
-    parser.add_argument("--dry-run", action="store_true",
-                        help="print what would be computed and exit, changing nothing")
-    parser.add_argument("--batch-size", type=int, metavar="N",
-                        help="systems per task (default: run.batch_size; 0 = automatic)")
-    parser.add_argument("--progress-every", type=float, default=10.0, metavar="SECONDS",
-                        help="seconds between progress lines (default 10)")
+    parser.add_argument(
+        "--out",
+        metavar="DIR",
+        help="run folder (default: <folder of SPEC>/<run name>_out); rerunning the same command resumes there",
+    )
+    parser.add_argument(
+        "--workers",
+        type=int,
+        metavar="N",
+        help="local worker processes (default: one per core), or for slurm/pbs the number of worker processes to keep",
+    )
+    parser.add_argument(
+        "--scheduler",
+        metavar="ADDRESS",
+        help="attach to a running Dask scheduler (tcp://host:port or a scheduler file)",
+    )
+    parser.add_argument("--cluster", metavar="FILE", help="TOML file with a [cluster] table used instead of the spec's")
+    parser.add_argument(
+        "--fresh", action="store_true", help="start over: move an existing run folder aside to <DIR>.replaced-<time>"
+    )
+    parser.add_argument(
+        "--extend", action="store_true", help="continue systems stopped by the wall-clock cap from their checkpoints"
+    )
+    parser.add_argument("--retry-failed", action="store_true", help="compute systems recorded as failed again")
+    parser.add_argument(
+        "--dry-run", action="store_true", help="print what would be computed and exit, changing nothing"
+    )
+    parser.add_argument(
+        "--batch-size", type=int, metavar="N", help="systems per task (default: run.batch_size; 0 = automatic)"
+    )
+    parser.add_argument(
+        "--progress-every",
+        type=float,
+        default=10.0,
+        metavar="SECONDS",
+        help="seconds between progress lines (default 10)",
+    )
 
 
 def execute(args) -> int:
     from scatter_pop.ensemble.cluster import apply_overrides, load_cluster_file
-    from scatter_pop.ensemble.stop_signals import stop_signals
     from scatter_pop.ensemble.driver import EnsembleRun, default_out
+    from scatter_pop.ensemble.stop_signals import stop_signals
 
     spec = load_spec(args.spec)
     if args.batch_size is not None and args.batch_size < 0:
@@ -46,20 +61,38 @@ def execute(args) -> int:
         raise InputError(f"--progress-every {args.progress_every}: must be a number of seconds > 0")
     if args.scheduler is not None and (args.workers is not None or args.cluster is not None):
         flag = "--workers" if args.workers is not None else "--cluster"
-        raise InputError(f"--scheduler {args.scheduler} with {flag}: give one (an existing scheduler "
-                         "brings its own workers)")
+        raise InputError(
+            f"--scheduler {args.scheduler} with {flag}: give one (an existing scheduler brings its own workers)"
+        )
     cluster = load_cluster_file(args.cluster) if args.cluster else spec.cluster
-    resolved = apply_overrides(cluster, args.workers, args.scheduler)     # checks the flags now
+    resolved = apply_overrides(cluster, args.workers, args.scheduler)  # checks the flags now
     out = args.out if args.out is not None else default_out(spec)
-    run = EnsembleRun(spec, out, workers=args.workers, scheduler=args.scheduler, cluster=cluster,
-                      fresh=args.fresh, extend=args.extend, retry_failed=args.retry_failed,
-                      batch_size=args.batch_size, progress_interval=args.progress_every)
+    run = EnsembleRun(
+        spec,
+        out,
+        workers=args.workers,
+        scheduler=args.scheduler,
+        cluster=cluster,
+        fresh=args.fresh,
+        extend=args.extend,
+        retry_failed=args.retry_failed,
+        batch_size=args.batch_size,
+        progress_interval=args.progress_every,
+    )
     if args.dry_run:
         plan = run.plan()
         print(plan.summary())
-        where = resolved.address if resolved.kind == "address" else (
-            f"{resolved.workers} workers" if resolved.kind == "local" and resolved.workers else
-            "one worker per core" if resolved.kind == "local" else f"{resolved.kind} jobs")
+        where = (
+            resolved.address
+            if resolved.kind == "address"
+            else (
+                f"{resolved.workers} workers"
+                if resolved.kind == "local" and resolved.workers
+                else "one worker per core"
+                if resolved.kind == "local"
+                else f"{resolved.kind} jobs"
+            )
+        )
         print(f"cluster: {resolved.kind} ({where}); nothing was computed (--dry-run)")
         return 0
     # SIGTERM (preemption, scancel) and SIGINT (Ctrl-C) stop the run at a safe point with one line
@@ -67,8 +100,10 @@ def execute(args) -> int:
     with stop_signals("scatter-pop run"):
         ds = run.run()
     reasons = ds["end_reason"]
-    words = ", ".join(f"{w} {int((reasons.values == v).sum())}"
-                      for v, w in zip(reasons.attrs["flag_values"], reasons.attrs["flag_meanings"].split())
-                      if (reasons.values == v).any())
+    words = ", ".join(
+        f"{w} {int((reasons.values == v).sum())}"
+        for v, w in zip(reasons.attrs["flag_values"], reasons.attrs["flag_meanings"].split())
+        if (reasons.values == v).any()
+    )
     print(f"done: {ds.sizes['system']} systems in {run.out / 'ensemble.nc'} (end reasons: {words})")
     return 0

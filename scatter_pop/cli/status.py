@@ -34,11 +34,14 @@ def status_lines(path) -> list[str]:
             tally.add(inside)
     state = folder.state()
     running = folder.locked_by_other()
-    lines = [f"run folder   {folder.path}  (run {spec.run.name!r}, seed {spec.run.seed}, "
-             f"identity {spec.digest()[:12]})"]
+    lines = [
+        f"run folder   {folder.path}  (run {spec.run.name!r}, seed {spec.run.seed}, identity {spec.digest()[:12]})"
+    ]
     if running:
-        lines.append(f"state        running since {state.get('started', '?')} "
-                     f"(pid {state.get('pid', '?')} on {state.get('host', '?')}, {state.get('workers', '?')} workers)")
+        lines.append(
+            f"state        running since {state.get('started', '?')} "
+            f"(pid {state.get('pid', '?')} on {state.get('host', '?')}, {state.get('workers', '?')} workers)"
+        )
     elif tally.systems >= n and folder.ensemble_is_current(spec):
         lines.append(f"state        finished; {folder.ensemble_path}")
     else:
@@ -46,23 +49,41 @@ def status_lines(path) -> list[str]:
     remaining = max(n - tally.systems, 0)
     lines.append(f"systems      {tally.systems}/{n} done ({100.0 * tally.systems / n:.1f} %), {remaining} to go")
     f = tally.fates
-    lines.append(f"planets      survived {f[Fate.SURVIVED]}, ejected {f[Fate.EJECTED]}, merged {f[Fate.MERGED]}, "
-                 f"hit star {f[Fate.HIT_STAR]}, tidally disrupted {f[Fate.DISRUPTED]}")
+    lines.append(
+        f"planets      survived {f[Fate.SURVIVED]}, ejected {f[Fate.EJECTED]}, merged {f[Fate.MERGED]}, "
+        f"hit star {f[Fate.HIT_STAR]}, tidally disrupted {f[Fate.DISRUPTED]}"
+    )
     lines.append("end reasons  " + ", ".join(f"{r.word} {tally.reasons[r]}" for r in EndReason))
     computed = tally.systems - len(tally.failed)
     mean = tally.cpu_seconds / computed if computed else float("nan")
-    lines.append(f"CPU time     {format_duration(tally.cpu_seconds)} integrating"
-                 + (f" (mean {mean:.3g} s per system)" if computed else ""))
+    lines.append(
+        f"CPU time     {format_duration(tally.cpu_seconds)} integrating"
+        + (f" (mean {mean:.3g} s per system)" if computed else "")
+    )
     if remaining and computed:
         workers = state.get("workers") or 1
-        lines.append(f"ETA          {format_duration(remaining * mean / workers)} on {workers} workers "
-                     f"({format_duration(remaining * mean)} of CPU time at the mean cost so far)")
+        lines.append(
+            f"ETA          {format_duration(remaining * mean / workers)} on {workers} workers "
+            f"({format_duration(remaining * mean)} of CPU time at the mean cost so far)"
+        )
     elif remaining:
         lines.append("ETA          unknown (no system finished yet)")
-    lines.append(f"capped       {len(tally.capped)}" + (f": systems {_listing(sorted(tally.capped))} "
-                 "(continue with scatter-pop run SPEC --extend)" if tally.capped else ""))
-    lines.append(f"failed       {len(tally.failed)}" + (f": systems {_listing(sorted(tally.failed))} "
-                 "(compute again with scatter-pop run SPEC --retry-failed)" if tally.failed else ""))
+    lines.append(
+        f"capped       {len(tally.capped)}"
+        + (
+            f": systems {_listing(sorted(tally.capped))} (continue with scatter-pop run SPEC --extend)"
+            if tally.capped
+            else ""
+        )
+    )
+    lines.append(
+        f"failed       {len(tally.failed)}"
+        + (
+            f": systems {_listing(sorted(tally.failed))} (compute again with scatter-pop run SPEC --retry-failed)"
+            if tally.failed
+            else ""
+        )
+    )
     if bad:
         lines.append(f"damaged      {len(bad)} part files, recomputed on the next run: {'; '.join(bad[:5])}")
     return lines

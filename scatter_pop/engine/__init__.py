@@ -12,5 +12,14 @@ from scatter_pop.engine.initial_conditions import InitialSystem, draw_system, sy
 from scatter_pop.engine.integrate import integrate_initial, integrate_system
 from scatter_pop.engine.outcome import EndReason, Fate, PlanetRecord, SystemRecord
 
-__all__ = ["draw_system", "system_seed", "InitialSystem", "integrate_system", "integrate_initial",
-           "SystemRecord", "PlanetRecord", "Fate", "EndReason"]
+__all__ = [
+    "draw_system",
+    "system_seed",
+    "InitialSystem",
+    "integrate_system",
+    "integrate_initial",
+    "SystemRecord",
+    "PlanetRecord",
+    "Fate",
+    "EndReason",
+]

@@ -18,9 +18,15 @@ import numpy as np
 from scatter_pop.engine.stability import tidal_disruption_radius
 
 __all__ = [
-    "relative_orbit", "line_min_distance", "merge_jump", "binding_to_interior",
-    "star_contact_distance", "classify_star_pass", "pericentre_timescale",
-    "encounter_radii", "mutual_hill_radius_now",
+    "relative_orbit",
+    "line_min_distance",
+    "merge_jump",
+    "binding_to_interior",
+    "star_contact_distance",
+    "classify_star_pass",
+    "pericentre_timescale",
+    "encounter_radii",
+    "mutual_hill_radius_now",
 ]
 
 
@@ -51,7 +57,7 @@ def relative_orbit(dx, dv, gm):
     h2 = float(h @ h)
     energy = 0.5 * v2 - gm / r
     e = math.sqrt(max(0.0, 1.0 + 2.0 * energy * h2 / gm**2))
-    q = h2 / (gm * (1.0 + e))                  # p / (1 + e): exact for any conic
+    q = h2 / (gm * (1.0 + e))  # p / (1 + e): exact for any conic
     a = -gm / (2.0 * energy) if energy != 0.0 else math.inf
     return a, e, q
 
@@ -120,8 +126,11 @@ def merge_jump(m, x, v, i, j, G):
     for k in range(len(m)):
         if k in (i, j):
             continue
-        de += G * m[k] * (mi / np.linalg.norm(x[k] - x[i]) + mj / np.linalg.norm(x[k] - x[j])
-                          - mt / np.linalg.norm(x[k] - com))
+        de += (
+            G
+            * m[k]
+            * (mi / np.linalg.norm(x[k] - x[i]) + mj / np.linalg.norm(x[k] - x[j]) - mt / np.linalg.norm(x[k] - com))
+        )
     dl = -mu * np.cross(dx, dvel)
     return float(de), dl
 
@@ -231,7 +240,9 @@ def encounter_radii(m_star, masses, sizes, margin=1.25):
     n = len(masses)
     out = []
     for k in range(n):
-        big = max((mutual_hill_radius_now(m_star, masses[k], masses[j], sizes[k], sizes[j])
-                   for j in range(n) if j != k), default=0.0)
+        big = max(
+            (mutual_hill_radius_now(m_star, masses[k], masses[j], sizes[k], sizes[j]) for j in range(n) if j != k),
+            default=0.0,
+        )
         out.append(0.5 * margin * big)
     return out

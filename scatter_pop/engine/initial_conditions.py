@@ -42,8 +42,15 @@ import numpy as np
 from scatter_pop.constants import G_AU_YR_MSUN
 from scatter_pop.errors import InputError
 
-__all__ = ["InitialSystem", "system_seed", "system_rng", "draw_system", "spaced_semi_major_axes",
-           "true_anomaly", "DRAW_ORDER"]
+__all__ = [
+    "InitialSystem",
+    "system_seed",
+    "system_rng",
+    "draw_system",
+    "spaced_semi_major_axes",
+    "true_anomaly",
+    "DRAW_ORDER",
+]
 
 DRAW_ORDER = ("mass", "spacing", "e", "inc", "omega", "node", "mean_anomaly")
 
@@ -89,8 +96,10 @@ class InitialSystem:
         """Astrocentric orbital period of the innermost bound planet (yr)."""
         bound = [k for k in range(self.count) if self.a[k] > 0.0]
         if not bound:
-            raise InputError("initial system: no planet on a bound orbit (every a <= 0); "
-                             "the inner period sets the time unit and needs one")
+            raise InputError(
+                "initial system: no planet on a bound orbit (every a <= 0); "
+                "the inner period sets the time unit and needs one"
+            )
         i = min(bound, key=lambda k: self.a[k])
         return 2.0 * math.pi * math.sqrt(self.a[i] ** 3 / (G_AU_YR_MSUN * (self.star_mass + self.mass[i])))
 
@@ -168,8 +177,10 @@ def spaced_semi_major_axes(a_inner: float, spacings, masses, star_mass: float) -
     for i, delta in enumerate(spacings):
         half = 0.5 * delta * math.cbrt((masses[i] + masses[i + 1]) / (3.0 * star_mass))
         if half >= 1.0:
-            raise InputError(f"planets.spacing = {delta!r} mutual Hill radii between planets {i} and {i + 1}: "
-                             f"too wide for these masses (needs Delta < {2.0 / (2.0 * half / delta):.4g})")
+            raise InputError(
+                f"planets.spacing = {delta!r} mutual Hill radii between planets {i} and {i + 1}: "
+                f"too wide for these masses (needs Delta < {2.0 / (2.0 * half / delta):.4g})"
+            )
         a.append(a[-1] * (1.0 + half) / (1.0 - half))
     return tuple(a)
 
@@ -192,25 +203,38 @@ def draw_system(spec, index: int) -> InitialSystem:
     seed = system_seed(spec.run.seed, index)
     rng = system_rng(seed)
     pl, n = spec.planets, spec.planets.count
-    masses = tuple(float(d.draw(rng)) for d in pl.masses)                    # block 1
+    masses = tuple(float(d.draw(rng)) for d in pl.masses)  # block 1
     if pl.spacing is not None:
-        spacings = [float(pl.spacing.draw(rng)) for _ in range(n - 1)]         # block 2
+        spacings = [float(pl.spacing.draw(rng)) for _ in range(n - 1)]  # block 2
         a = spaced_semi_major_axes(pl.a_inner, spacings, masses, spec.star.mass)
     else:
-        rng.random(n - 1)                                                      # block 2, unused
+        rng.random(n - 1)  # block 2, unused
         a = tuple(float(x) for x in pl.a_list)
     if a[-1] >= spec.integration.ejection_distance:
-        raise InputError(f"planets.spacing: the outermost planet starts at a = {a[-1]:.6g} AU, beyond "
-                         f"integration.ejection_distance = {spec.integration.ejection_distance!r} AU")
-    ecc = tuple(_rayleigh_truncated(float(u), pl.e_sigma, 1.0) for u in rng.random(n))       # block 3
+        raise InputError(
+            f"planets.spacing: the outermost planet starts at a = {a[-1]:.6g} AU, beyond "
+            f"integration.ejection_distance = {spec.integration.ejection_distance!r} AU"
+        )
+    ecc = tuple(_rayleigh_truncated(float(u), pl.e_sigma, 1.0) for u in rng.random(n))  # block 3
     inc = tuple(_rayleigh_truncated(float(u), pl.inc_sigma, math.pi) for u in rng.random(n))  # block 4
-    omega = tuple(float(x) for x in 2.0 * math.pi * rng.random(n))                           # block 5
-    node = tuple(float(x) for x in 2.0 * math.pi * rng.random(n))                            # block 6
-    mean_anomaly = tuple(float(x) for x in 2.0 * math.pi * rng.random(n))                    # block 7
+    omega = tuple(float(x) for x in 2.0 * math.pi * rng.random(n))  # block 5
+    node = tuple(float(x) for x in 2.0 * math.pi * rng.random(n))  # block 6
+    mean_anomaly = tuple(float(x) for x in 2.0 * math.pi * rng.random(n))  # block 7
     if pl.radius is not None:
         radius = (float(pl.radius),) * n
     else:
         radius = tuple(math.cbrt(3.0 * m / (4.0 * math.pi * pl.density)) for m in masses)
-    return InitialSystem(star_mass=spec.star.mass, star_radius=spec.star.radius, mass=masses, radius=radius,
-                         a=a, e=ecc, inc=inc, omega=omega, node=node, mean_anomaly=mean_anomaly,
-                         seed=seed, index=int(index))
+    return InitialSystem(
+        star_mass=spec.star.mass,
+        star_radius=spec.star.radius,
+        mass=masses,
+        radius=radius,
+        a=a,
+        e=ecc,
+        inc=inc,
+        omega=omega,
+        node=node,
+        mean_anomaly=mean_anomaly,
+        seed=seed,
+        index=int(index),
+    )

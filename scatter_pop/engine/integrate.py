@@ -36,8 +36,9 @@ def integrate_system(spec, index: int, *, checkpoint_path=None, reference: bool 
     -------
     SystemRecord
     """
-    return integrate_systems(spec, [index], checkpoint_paths=None if checkpoint_path is None else [checkpoint_path],
-                             reference=reference)[0]
+    return integrate_systems(
+        spec, [index], checkpoint_paths=None if checkpoint_path is None else [checkpoint_path], reference=reference
+    )[0]
 
 
 def integrate_systems(spec, indices, *, checkpoint_paths=None, budgets=None, reference: bool = False):
@@ -49,17 +50,24 @@ def integrate_systems(spec, indices, *, checkpoint_paths=None, budgets=None, ref
     """
     initials = [draw_system(spec, int(i)) for i in indices]
     return backend(spec.integration.integrator).integrate_many(
-        initials, spec.integration, spec.outcomes, checkpoint_paths=checkpoint_paths, budgets=budgets,
-        reference=reference)
+        initials,
+        spec.integration,
+        spec.outcomes,
+        checkpoint_paths=checkpoint_paths,
+        budgets=budgets,
+        reference=reference,
+    )
 
 
-def integrate_initial(initial: InitialSystem, integration, outcomes, *, checkpoint_path=None,
-                      reference: bool = False) -> SystemRecord:
+def integrate_initial(
+    initial: InitialSystem, integration, outcomes, *, checkpoint_path=None, reference: bool = False
+) -> SystemRecord:
     """Integrate given initial conditions and classify the outcome.
 
     Same as :func:`integrate_system` but from an :class:`InitialSystem` (e.g. a
     hand-made orbit) and the spec's ``integration`` (IntegrationSpec) and
     ``outcomes`` (OutcomeSpec) sections.
     """
-    return backend(integration.integrator).integrate_one(initial, integration, outcomes,
-                                                         checkpoint_path=checkpoint_path, reference=reference)
+    return backend(integration.integrator).integrate_one(
+        initial, integration, outcomes, checkpoint_path=checkpoint_path, reference=reference
+    )

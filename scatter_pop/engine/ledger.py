@@ -109,7 +109,7 @@ class Ledger:
         return json.dumps(data, sort_keys=True, allow_nan=True)
 
     @classmethod
-    def from_json(cls, text: str) -> "Ledger":
+    def from_json(cls, text: str) -> Ledger:
         data = json.loads(text)
         data["fates"] = {k: FateEntry(**v) for k, v in data["fates"].items()}
         return cls(**data)
@@ -144,7 +144,7 @@ def write_checkpoint(path, ledger: Ledger, sim_bytes: bytes) -> None:
     try:
         os.fsync(dir_fd)
     except OSError:
-        pass   # some file systems do not support fsync on directories
+        pass  # some file systems do not support fsync on directories
     finally:
         os.close(dir_fd)
 
@@ -159,10 +159,12 @@ def read_checkpoint(path) -> tuple[Ledger, bytes]:
     """
     data = Path(path).read_bytes()
     if len(data) < 16 or data[:8] != CHECKPOINT_MAGIC:
-        raise InputError(f"checkpoint {str(path)!r}: not a scatter_pop checkpoint file "
-                         f"(expected it to start with {CHECKPOINT_MAGIC!r})")
+        raise InputError(
+            f"checkpoint {str(path)!r}: not a scatter_pop checkpoint file "
+            f"(expected it to start with {CHECKPOINT_MAGIC!r})"
+        )
     (n,) = struct.unpack("<Q", data[8:16])
     if 16 + n > len(data):
         raise InputError(f"checkpoint {str(path)!r}: truncated ({len(data)} bytes, header says {16 + n}+)")
-    ledger = Ledger.from_json(data[16:16 + n].decode("utf-8"))
-    return ledger, data[16 + n:]
+    ledger = Ledger.from_json(data[16 : 16 + n].decode("utf-8"))
+    return ledger, data[16 + n :]

@@ -19,11 +19,11 @@ NO_PLANET = -1  # value of ``merged_into`` when a planet did not merge
 class Fate(IntEnum):
     """What became of one planet (codes stored as int8 with CF flag_values)."""
 
-    SURVIVED = 0           # still orbiting at the end
-    EJECTED = 1            # unbound and beyond the ejection distance; removed
-    MERGED = 2             # collided with another planet and merged into it
-    HIT_STAR = 3           # physical collision with the star
-    DISRUPTED = 4          # pericentre inside eta * r_t: tidally disrupted
+    SURVIVED = 0  # still orbiting at the end
+    EJECTED = 1  # unbound and beyond the ejection distance; removed
+    MERGED = 2  # collided with another planet and merged into it
+    HIT_STAR = 3  # physical collision with the star
+    DISRUPTED = 4  # pericentre inside eta * r_t: tidally disrupted
 
     @property
     def word(self) -> str:
@@ -42,12 +42,12 @@ _FATE_WORDS = {
 class EndReason(IntEnum):
     """Which rule ended the integration of a system."""
 
-    END_TIME = 0           # reached the spec's end time
-    ONE_PLANET = 1         # one planet left: nothing more can happen
-    HILL_STABLE = 2        # two planets left, Hill stable with the safety margin
-    NO_PLANETS = 3         # every planet removed
-    CAPPED = 4             # wall-clock cap reached; checkpoint kept, can be extended
-    FAILED = 5             # the worker died on this system too often; no result
+    END_TIME = 0  # reached the spec's end time
+    ONE_PLANET = 1  # one planet left: nothing more can happen
+    HILL_STABLE = 2  # two planets left, Hill stable with the safety margin
+    NO_PLANETS = 3  # every planet removed
+    CAPPED = 4  # wall-clock cap reached; checkpoint kept, can be extended
+    FAILED = 5  # the worker died on this system too often; no result
 
     @property
     def word(self) -> str:
@@ -73,22 +73,22 @@ class PlanetRecord:
     planet that merged is its mass just before the merger.
     """
 
-    mass_initial: float        # M_sun
-    a_initial: float           # AU
+    mass_initial: float  # M_sun
+    a_initial: float  # AU
     e_initial: float
-    inc_initial: float         # rad, to the initial reference plane
-    radius_initial: float      # AU
-    mass_final: float          # M_sun
-    a_final: float             # AU (negative when unbound)
+    inc_initial: float  # rad, to the initial reference plane
+    radius_initial: float  # AU
+    mass_final: float  # M_sun
+    a_final: float  # AU (negative when unbound)
     e_final: float
-    inc_final: float           # rad
-    q_final: float             # AU, pericentre distance a(1-e)
-    radius_final: float        # AU
-    omega_final: float = math.nan   # rad, argument of pericentre
-    node_final: float = math.nan    # rad, longitude of ascending node
+    inc_final: float  # rad
+    q_final: float  # AU, pericentre distance a(1-e)
+    radius_final: float  # AU
+    omega_final: float = math.nan  # rad, argument of pericentre
+    node_final: float = math.nan  # rad, longitude of ascending node
     fate: Fate = Fate.SURVIVED
-    t_fate: float = math.nan   # yr; NaN for survivors
-    merged_into: int = NO_PLANET   # planet index it merged into
+    t_fate: float = math.nan  # yr; NaN for survivors
+    merged_into: int = NO_PLANET  # planet index it merged into
     tidal_candidate: bool = False  # survivor with q below the circularisation threshold
 
 
@@ -96,17 +96,17 @@ class PlanetRecord:
 class SystemRecord:
     """Outcome of one system of the ensemble."""
 
-    index: int                     # system index within the run
-    seed: int                      # 64-bit seed this system's draws came from
+    index: int  # system index within the run
+    seed: int  # 64-bit seed this system's draws came from
     planets: tuple[PlanetRecord, ...]
-    t_end: float                   # yr, time the integration stopped
+    t_end: float  # yr, time the integration stopped
     end_reason: EndReason
-    t_first_encounter: float = math.nan   # yr, first separation < 1 mutual Hill radius
-    energy_error: float = math.nan        # relative, corrected for mergers/removals
-    angmom_error: float = math.nan        # relative, corrected likewise
+    t_first_encounter: float = math.nan  # yr, first separation < 1 mutual Hill radius
+    energy_error: float = math.nan  # relative, corrected for mergers/removals
+    angmom_error: float = math.nan  # relative, corrected likewise
     steps: int = 0
     wall_seconds: float = 0.0
-    attempts: int = 1                     # times the system was started (worker deaths)
+    attempts: int = 1  # times the system was started (worker deaths)
     integrator: str = ""
 
     def count(self, fate: Fate) -> int:

@@ -68,21 +68,26 @@ import rebound
 from rebound import clibrebound
 
 from scatter_pop.engine.backends import backend as backend_named
-from scatter_pop.engine.encounters import binding_to_interior, classify_star_pass, line_min_distance, merge_jump, mutual_hill_radius_now
-from scatter_pop.errors import InputError
-
+from scatter_pop.engine.encounters import (
+    binding_to_interior,
+    classify_star_pass,
+    line_min_distance,
+    merge_jump,
+    mutual_hill_radius_now,
+)
 from scatter_pop.engine.ledger import FateEntry, Ledger, read_checkpoint, write_checkpoint
 from scatter_pop.engine.outcome import NO_PLANET, EndReason, Fate, SystemRecord
-from scatter_pop.engine.record_builder import build_record, planet_index, planet_name
-from scatter_pop.engine.search_radii import set_escape_radius, set_search_radii, set_star_radius
 from scatter_pop.engine.rebound_setup import STAR_NAME, build_simulation, restore_simulation, simulation_blob
 from scatter_pop.engine.rebound_state import astrocentric_orbit, body_size, fate_entry, hybrid_step, state_arrays
+from scatter_pop.engine.record_builder import build_record, planet_index, planet_name
+from scatter_pop.engine.search_radii import set_escape_radius, set_search_radii, set_star_radius
 from scatter_pop.engine.stability import marchal_bozis_state_ratio, tidal_disruption_radius
+from scatter_pop.errors import InputError
 
 __all__ = ["SystemRun", "STAR_NAME"]
 
-HYBRID_CHECK_STEPS = 2000      # hybrid step re-checked every this many steps (~2 % Python overhead)
-STEP_CHANGE = 1.25             # ... and re-chosen when the wanted step differs by more than this factor
+HYBRID_CHECK_STEPS = 2000  # hybrid step re-checked every this many steps (~2 % Python overhead)
+STEP_CHANGE = 1.25  # ... and re-chosen when the wanted step differs by more than this factor
 
 
 class SystemRun:
@@ -97,23 +102,24 @@ class SystemRun:
         self.t_end = integration.end_time_years(self.p_in)
         self.chunk = integration.check_orbits * self.p_in
         self.error = None
-        self.events = False            # a merger, star contact or ejection since the step was chosen
-        self.step_changes = []         # (t, dt) each time the hybrid step was re-chosen (diagnostics)
-        identity = {"initial": asdict(initial), "integration": asdict(integration),
-                    "outcomes": asdict(outcomes)}
+        self.events = False  # a merger, star contact or ejection since the step was chosen
+        self.step_changes = []  # (t, dt) each time the hybrid step was re-chosen (diagnostics)
+        identity = {"initial": asdict(initial), "integration": asdict(integration), "outcomes": asdict(outcomes)}
         identity["integration"].pop("wall_seconds_max")
         self.identity = json.loads(json.dumps(identity))
         if self.path is not None and self.path.exists():
             self.ledger, blob = read_checkpoint(self.path)
             if self.ledger.identity != self.identity:
-                raise InputError(f"checkpoint {str(self.path)!r}: written for another system or other settings "
-                                 f"(system index {self.ledger.identity.get('initial', {}).get('index')!r}); "
-                                 "remove it or point to the right file")
-            self.sim = restore_simulation(blob, self.ledger.bodies)   # names re-set from the ledger
+                raise InputError(
+                    f"checkpoint {str(self.path)!r}: written for another system or other settings "
+                    f"(system index {self.ledger.identity.get('initial', {}).get('index')!r}); "
+                    "remove it or point to the right file"
+                )
+            self.sim = restore_simulation(blob, self.ledger.bodies)  # names re-set from the ledger
         else:
             self.ledger = Ledger(identity=self.identity)
             self.sim = self._build()
-        self.sim.collision_resolve = self._resolve      # function pointers are not saved: set every time
+        self.sim.collision_resolve = self._resolve  # function pointers are not saved: set every time
 
     # ------------------------------------------------------------------ set-up
     def _build(self):
@@ -128,8 +134,10 @@ class SystemRun:
         sim.dt = self._step_size() if self.backend.hybrid else self.p_in / 100.0
         self.ledger.e0 = sim.energy()
         self.ledger.l0 = list(sim.angular_momentum())
-        self.ledger.l_scale = sum(sim.particles[k].m * float(np.linalg.norm(np.cross(sim.particles[k].xyz,
-                                  sim.particles[k].vxyz))) for k in range(sim.N))
+        self.ledger.l_scale = sum(
+            sim.particles[k].m * float(np.linalg.norm(np.cross(sim.particles[k].xyz, sim.particles[k].vxyz)))
+            for k in range(sim.N)
+        )
         self._set_search_radii()
         return sim
 
@@ -157,7 +165,7 @@ class SystemRun:
     def _resolve(self, sim_pointer, collision):
         try:
             return self._contact(sim_pointer, collision)
-        except Exception as exc:            # a ctypes callback must not raise: stop, re-raise after
+        except Exception as exc:  # a ctypes callback must not raise: stop, re-raise after
             self.error = exc
             clibrebound.reb_simulation_stop(sim_pointer)
             return 0
@@ -169,27 +177,26 @@ class SystemRun:
         ps = self.sim.particles
         dx = np.subtract(ps[i].xyz, ps[j].xyz)
         dv = np.subtract(ps[i].vxyz, ps[j].vxyz)
-        if self.backend.collision == "direct":     # "direct" search: end of step, approaching pairs
+        if self.backend.collision == "direct":  # "direct" search: end of step, approaching pairs
             d_min = float(np.linalg.norm(dx)) if float(dx @ dv) <= 0.0 else math.inf
         else:
             d_min = line_min_distance(dx, dv, self.sim.dt_last_done)
-        if not self.ledger.encounter_found:        # sampled at step ends (no extrapolation)
-            r_hill = mutual_hill_radius_now(ps[0].m, ps[i].m, ps[j].m, body_size(self.sim, i),
-                                            body_size(self.sim, j))
+        if not self.ledger.encounter_found:  # sampled at step ends (no extrapolation)
+            r_hill = mutual_hill_radius_now(ps[0].m, ps[i].m, ps[j].m, body_size(self.sim, i), body_size(self.sim, j))
             if float(np.linalg.norm(dx)) < r_hill:
                 self.ledger.t_first_encounter = float(self.sim.t)
                 self._set_search_radii()
         ri, rj = self.ledger.radius[self._name(i)], self.ledger.radius[self._name(j)]
         if d_min >= ri + rj:
             return 0
-        keep, gone = (i, j) if i < j else (j, i)   # REBOUND keeps the lower index
+        keep, gone = (i, j) if i < j else (j, i)  # REBOUND keeps the lower index
         entry = self._fate_entry(gone, Fate.MERGED, planet_index(self._name(keep)))
         m, x, v = self.arrays()
         jump = merge_jump(m, x, v, i, j, self.sim.G)
         search = ps[i].r, ps[j].r
-        ps[i].r, ps[j].r = ri, rj                    # merged radius from the physical radii
+        ps[i].r, ps[j].r = ri, rj  # merged radius from the physical radii
         outcome = clibrebound.reb_collision_resolve_merge(sim_pointer, collision)
-        if outcome == 0:                             # REBOUND merges a body at most once a step
+        if outcome == 0:  # REBOUND merges a body at most once a step
             ps[i].r, ps[j].r = search
             return 0
         self.ledger.fates[self._name(gone)] = entry
@@ -198,33 +205,37 @@ class SystemRun:
         self._set_star_radius(exclude=gone)
         self.events = True
         if self._finished(leaving=1):
-            clibrebound.reb_simulation_stop(sim_pointer)     # ends after this step: t_end = event time
-        del self.ledger.bodies[gone]                 # REBOUND removes `gone` as this returns
+            clibrebound.reb_simulation_stop(sim_pointer)  # ends after this step: t_end = event time
+        del self.ledger.bodies[gone]  # REBOUND removes `gone` as this returns
         return outcome
 
     def _star_pass(self, sim_pointer, collision, k: int) -> int:
         ps = self.sim.particles
         _, _, q = astrocentric_orbit(self.sim, k)
-        kind = classify_star_pass(q, ps[0].m, self.initial.star_radius, ps[k].m,
-                                  self.ledger.radius[self._name(k)], self.out.disruption_eta)
+        kind = classify_star_pass(
+            q, ps[0].m, self.initial.star_radius, ps[k].m, self.ledger.radius[self._name(k)], self.out.disruption_eta
+        )
         if kind is None:
             return 0
         fate = Fate.HIT_STAR if kind == "hit_star" else Fate.DISRUPTED
-        if self.backend.collision == "line":    # "line" search: wait until the pass is reached
+        if self.backend.collision == "line":  # "line" search: wait until the pass is reached
             r_p = self.ledger.radius[self._name(k)]
-            limit = (self.initial.star_radius + r_p if fate == Fate.HIT_STAR else
-                     float(tidal_disruption_radius(ps[k].m, r_p, ps[0].m, self.out.disruption_eta)))
+            limit = (
+                self.initial.star_radius + r_p
+                if fate == Fate.HIT_STAR
+                else float(tidal_disruption_radius(ps[k].m, r_p, ps[0].m, self.out.disruption_eta))
+            )
             dx = np.subtract(ps[k].xyz, ps[0].xyz)
             dv = np.subtract(ps[k].vxyz, ps[0].vxyz)
             if float(dx @ dv) < 0.0 and line_min_distance(dx, dv, self.sim.dt_last_done) >= limit:
-                return 0                             # still falling in: decide at a later step
+                return 0  # still falling in: decide at a later step
         entry = self._fate_entry(k, fate)
         m, x, v = self.arrays()
         jump = merge_jump(m, x, v, 0, k, self.sim.G)
         search = ps[0].r
         ps[0].r = self.initial.star_radius
         outcome = clibrebound.reb_collision_resolve_merge(sim_pointer, collision)
-        if outcome == 0:                             # REBOUND merges a body at most once a step
+        if outcome == 0:  # REBOUND merges a body at most once a step
             ps[0].r = search
             return 0
         self.ledger.fates[self._name(k)] = entry
@@ -233,7 +244,7 @@ class SystemRun:
         self.events = True
         if self._finished(leaving=1):
             clibrebound.reb_simulation_stop(sim_pointer)
-        del self.ledger.bodies[k]                    # REBOUND removes the planet as this returns
+        del self.ledger.bodies[k]  # REBOUND removes the planet as this returns
         return outcome
 
     # ------------------------------------------------------------------ escapes (between steps)
@@ -318,7 +329,7 @@ class SystemRun:
             target = min((self.ledger.chunks_done + 1) * self.chunk, self.t_end)
             self.integrate_to(target)
             self.ledger.chunks_done += 1
-            self._escape()                               # eject unbound planets beyond the distance
+            self._escape()  # eject unbound planets beyond the distance
             reason = self._settled()
             if reason is None and self.sim.t >= self.t_end:
                 reason = EndReason.END_TIME
@@ -340,6 +351,15 @@ class SystemRun:
     def _record(self, reason: EndReason) -> SystemRecord:
         sim = self.sim
         survivors = {self._name(k): self._fate_entry(k, Fate.SURVIVED) for k in range(1, sim.N)}
-        return build_record(self.initial, self.ledger, survivors, reason=reason, t_end=sim.t,
-                            energy=sim.energy(), angmom=sim.angular_momentum(), steps=sim.steps_done,
-                            integrator=self.integ.integrator, circularisation_q=self.out.circularisation_q)
+        return build_record(
+            self.initial,
+            self.ledger,
+            survivors,
+            reason=reason,
+            t_end=sim.t,
+            energy=sim.energy(),
+            angmom=sim.angular_momentum(),
+            steps=sim.steps_done,
+            integrator=self.integ.integrator,
+            circularisation_q=self.out.circularisation_q,
+        )

@@ -23,14 +23,13 @@ import warnings
 import rebound
 
 from scatter_pop.constants import G_AU_YR_MSUN
-from scatter_pop.errors import InputError
 from scatter_pop.engine.initial_conditions import InitialSystem, true_anomaly
+from scatter_pop.errors import InputError
 
-__all__ = ["build_simulation", "restore_simulation", "simulation_blob", "contact_time", "STAR_NAME",
-           "MIN_DT_FRACTION"]
+__all__ = ["build_simulation", "restore_simulation", "simulation_blob", "contact_time", "STAR_NAME", "MIN_DT_FRACTION"]
 
 STAR_NAME = "star"
-MIN_DT_FRACTION = 1e-4         # IAS15 step floor: 1e-4 of the shortest contact free-fall time
+MIN_DT_FRACTION = 1e-4  # IAS15 step floor: 1e-4 of the shortest contact free-fall time
 
 
 def build_simulation(initial: InitialSystem, integration, planet_names, backend) -> rebound.Simulation:
@@ -45,16 +44,24 @@ def build_simulation(initial: InitialSystem, integration, planet_names, backend)
     sim.G = G_AU_YR_MSUN
     sim.add(m=ini.star_mass, r=ini.star_radius, name=STAR_NAME)
     for i in range(ini.count):
-        sim.add(primary=sim.particles[0], m=ini.mass[i], r=ini.radius[i], a=ini.a[i], e=ini.e[i],
-                inc=ini.inc[i], omega=ini.omega[i], Omega=ini.node[i],
-                f=true_anomaly(ini.mean_anomaly[i], ini.e[i]), name=planet_names[i])
+        sim.add(
+            primary=sim.particles[0],
+            m=ini.mass[i],
+            r=ini.radius[i],
+            a=ini.a[i],
+            e=ini.e[i],
+            inc=ini.inc[i],
+            omega=ini.omega[i],
+            Omega=ini.node[i],
+            f=true_anomaly(ini.mean_anomaly[i], ini.e[i]),
+            name=planet_names[i],
+        )
     sim.move_to_com()
     if not all(math.isfinite(c) for k in range(sim.N) for c in (*sim.particles[k].xyz, *sim.particles[k].vxyz)):
-        raise InputError(f"initial system {ini.index}: the elements give no finite position "
-                         f"(a = {ini.a}, e = {ini.e})")
-    sim.rand_seed = int(ini.seed) % 2**32        # orders simultaneous contacts; saved with the state
+        raise InputError(f"initial system {ini.index}: the elements give no finite position (a = {ini.a}, e = {ini.e})")
+    sim.rand_seed = int(ini.seed) % 2**32  # orders simultaneous contacts; saved with the state
     backend.configure_simulation(sim, integ, ini)
-    sim.track_energy_offset = 0                  # every jump is booked in the ledger instead
+    sim.track_energy_offset = 0  # every jump is booked in the ledger instead
     sim.exit_max_distance = integ.ejection_distance
     return sim
 
@@ -77,7 +84,7 @@ def restore_simulation(blob: bytes, bodies) -> rebound.Simulation:
     Names are not trusted after a reload (REBOUND 5.2.2 can change them once other
     simulations are freed).  The caller must set ``collision_resolve`` again.
     """
-    with warnings.catch_warnings():       # the caller sets the resolve function again
+    with warnings.catch_warnings():  # the caller sets the resolve function again
         warnings.filterwarnings("ignore", message="You have to reset function pointers")
         sim = rebound.Simulation(blob)
     for particle, name in zip(sim.particles, bodies):

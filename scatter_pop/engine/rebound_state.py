@@ -65,6 +65,16 @@ def fate_entry(sim, k: int, fate: Fate, radius: float, merged_into: int = NO_PLA
     ps = sim.particles
     orbit = ps[k].orbit(primary=ps[0])
     _, _, q = astrocentric_orbit(sim, k)
-    return FateEntry(fate=int(fate), t=float(sim.t), merged_into=int(merged_into), mass=float(ps[k].m),
-                     a=float(orbit.a), e=float(orbit.e), inc=float(orbit.inc), omega=float(orbit.omega),
-                     node=float(orbit.Omega), q=float(q), radius=float(radius))
+    return FateEntry(
+        fate=int(fate),
+        t=float(sim.t),
+        merged_into=int(merged_into),
+        mass=float(ps[k].m),
+        a=float(orbit.a),
+        e=float(orbit.e),
+        inc=float(orbit.inc),
+        omega=float(orbit.omega),
+        node=float(orbit.Omega),
+        q=float(q),
+        radius=float(radius),
+    )

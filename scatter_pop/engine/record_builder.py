@@ -28,8 +28,19 @@ def planet_index(name: str) -> int:
     return int(name[1:])
 
 
-def build_record(initial: InitialSystem, ledger: Ledger, survivors: dict, *, reason: EndReason, t_end: float,
-                 energy: float, angmom, steps: int, integrator: str, circularisation_q: float) -> SystemRecord:
+def build_record(
+    initial: InitialSystem,
+    ledger: Ledger,
+    survivors: dict,
+    *,
+    reason: EndReason,
+    t_end: float,
+    energy: float,
+    angmom,
+    steps: int,
+    integrator: str,
+    circularisation_q: float,
+) -> SystemRecord:
     """The SystemRecord of a finished (or capped) integration.
 
     Parameters
@@ -57,19 +68,39 @@ def build_record(initial: InitialSystem, ledger: Ledger, survivors: dict, *, rea
         name = planet_name(i)
         state = survivors.get(name) or ledger.fates[name]
         alive = name in survivors
-        planets.append(PlanetRecord(
-            mass_initial=initial.mass[i], a_initial=initial.a[i], e_initial=initial.e[i],
-            inc_initial=initial.inc[i], radius_initial=initial.radius[i],
-            mass_final=state.mass, a_final=state.a, e_final=state.e, inc_final=state.inc, q_final=state.q,
-            radius_final=state.radius, omega_final=state.omega, node_final=state.node, fate=Fate(state.fate),
-            t_fate=math.nan if alive else state.t, merged_into=state.merged_into,
-            tidal_candidate=bool(alive and state.q < circularisation_q)))
+        planets.append(
+            PlanetRecord(
+                mass_initial=initial.mass[i],
+                a_initial=initial.a[i],
+                e_initial=initial.e[i],
+                inc_initial=initial.inc[i],
+                radius_initial=initial.radius[i],
+                mass_final=state.mass,
+                a_final=state.a,
+                e_final=state.e,
+                inc_final=state.inc,
+                q_final=state.q,
+                radius_final=state.radius,
+                omega_final=state.omega,
+                node_final=state.node,
+                fate=Fate(state.fate),
+                t_fate=math.nan if alive else state.t,
+                merged_into=state.merged_into,
+                tidal_candidate=bool(alive and state.q < circularisation_q),
+            )
+        )
     l_now = np.asarray(angmom, dtype=float) + np.asarray(ledger.angmom_removed)
     l0 = np.asarray(ledger.l0)
     return SystemRecord(
-        index=initial.index, seed=initial.seed, planets=tuple(planets), t_end=float(t_end), end_reason=reason,
+        index=initial.index,
+        seed=initial.seed,
+        planets=tuple(planets),
+        t_end=float(t_end),
+        end_reason=reason,
         t_first_encounter=ledger.t_first_encounter,
         energy_error=float((energy + ledger.energy_removed - ledger.e0) / abs(ledger.e0)),
         angmom_error=float(np.linalg.norm(l_now - l0) / ledger.l_scale),
-        steps=int(steps), wall_seconds=ledger.wall_seconds, integrator=integrator)
-
+        steps=int(steps),
+        wall_seconds=ledger.wall_seconds,
+        integrator=integrator,
+    )

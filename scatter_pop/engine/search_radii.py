@@ -29,8 +29,8 @@ from scatter_pop.engine.rebound_state import body_size, state_arrays
 
 __all__ = ["set_search_radii", "set_star_radius", "set_escape_radius", "ENCOUNTER_MARGIN", "ESCAPE_MARGIN"]
 
-ENCOUNTER_MARGIN = 1.25        # search radii cover 1.25 mutual Hill radii until the first encounter
-ESCAPE_MARGIN = 1.05           # a bound planet beyond the ejection distance: escape radius 1.05 x apocentre
+ENCOUNTER_MARGIN = 1.25  # search radii cover 1.25 mutual Hill radii until the first encounter
+ESCAPE_MARGIN = 1.05  # a bound planet beyond the ejection distance: escape radius 1.05 x apocentre
 
 
 def set_star_radius(sim, ledger, star_radius: float, eta: float, exclude: int | None = None) -> None:
@@ -39,8 +39,11 @@ def set_star_radius(sim, ledger, star_radius: float, eta: float, exclude: int | 
     ``star_radius`` is the star's physical radius (AU), ``eta`` the tidal-disruption factor.
     """
     ps = sim.particles
-    need = [star_contact_distance(ps[0].m, star_radius, ps[k].m, ledger.radius[ledger.bodies[k]], eta) - ps[k].r
-            for k in range(1, sim.N) if k != exclude]
+    need = [
+        star_contact_distance(ps[0].m, star_radius, ps[k].m, ledger.radius[ledger.bodies[k]], eta) - ps[k].r
+        for k in range(1, sim.N)
+        if k != exclude
+    ]
     ps[0].r = max([0.0, *need]) if need else star_radius
 
 
@@ -51,8 +54,9 @@ def set_search_radii(sim, ledger, star_radius: float, eta: float) -> None:
         for k in range(1, n):
             ps[k].r = ledger.radius[ledger.bodies[k]]
     else:
-        radii = encounter_radii(ps[0].m, [ps[k].m for k in range(1, n)],
-                                [body_size(sim, k) for k in range(1, n)], ENCOUNTER_MARGIN)
+        radii = encounter_radii(
+            ps[0].m, [ps[k].m for k in range(1, n)], [body_size(sim, k) for k in range(1, n)], ENCOUNTER_MARGIN
+        )
         for k in range(1, n):
             ps[k].r = max(radii[k - 1], ledger.radius[ledger.bodies[k]])
     set_star_radius(sim, ledger, star_radius, eta)

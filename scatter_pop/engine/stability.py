@@ -26,11 +26,19 @@ from __future__ import annotations
 import numpy as np
 
 __all__ = [
-    "mutual_hill_radius", "hill_spacing",
-    "gladman_circular_critical_delta", "gladman_circular_critical_spacing", "hill_stable_circular",
-    "euler_value", "marchal_bozis_ratio", "marchal_bozis_critical", "marchal_bozis_state_ratio",
-    "petrovich_2015_critical_ratio", "petrovich_2015_stable",
-    "safronov_number", "tidal_disruption_radius",
+    "mutual_hill_radius",
+    "hill_spacing",
+    "gladman_circular_critical_delta",
+    "gladman_circular_critical_spacing",
+    "hill_stable_circular",
+    "euler_value",
+    "marchal_bozis_ratio",
+    "marchal_bozis_critical",
+    "marchal_bozis_state_ratio",
+    "petrovich_2015_critical_ratio",
+    "petrovich_2015_stable",
+    "safronov_number",
+    "tidal_disruption_radius",
 ]
 
 _THREE_43 = 3.0 ** (4.0 / 3.0)
@@ -97,7 +105,7 @@ def gladman_circular_critical_delta(mu1, mu2):
     mu = mu1 + mu2
     rhs = 1.0 + _THREE_43 * mu1 * mu2 / mu ** (4.0 / 3.0)
 
-    def excess(lam):   # increasing in lam > 1 (derivative 2 mu1 mu2 (mu1 + mu2 lam)(1 - lam^-3))
+    def excess(lam):  # increasing in lam > 1 (derivative 2 mu1 mu2 (mu1 + mu2 lam)(1 - lam^-3))
         return (mu1 + mu2 / lam**2) * (mu1 + mu2 * lam) ** 2 / mu**3 - rhs
 
     lam = _bisect_increasing(excess, np.ones_like(mu), np.full_like(mu, 10.0))
@@ -166,7 +174,7 @@ def euler_value(m_a, m_b, m_c):
     coeffs = [m_a + m_b, 3 * m_a + 2 * m_b, 3 * m_a + m_b, -(m_b + 3 * m_c), -(2 * m_b + 3 * m_c), -(m_b + m_c)]
     roots = np.roots(coeffs)
     x = float(max(r.real for r in roots if abs(r.imag) < 1e-9 * max(1.0, abs(r)) and r.real > 0))
-    for _ in range(3):                         # polish with Newton steps
+    for _ in range(3):  # polish with Newton steps
         p, dp = np.polyval(coeffs, x), np.polyval(np.polyder(coeffs), x)
         x -= p / dp
     m = np.array([m_a, m_b, m_c])

@@ -41,8 +41,19 @@ import numpy as np
 from scatter_pop.errors import InputError
 from scatter_pop.spec.reader import INTEGRATORS, IntegrationSpec, parse_spec
 
-__all__ = ["BENCH_SPEC", "Path", "make_paths", "bench_spec", "run_paths", "summarize", "format_table",
-           "measure_scaling", "run_benchmark", "FULL", "QUICK"]
+__all__ = [
+    "BENCH_SPEC",
+    "Path",
+    "make_paths",
+    "bench_spec",
+    "run_paths",
+    "summarize",
+    "format_table",
+    "measure_scaling",
+    "run_benchmark",
+    "FULL",
+    "QUICK",
+]
 
 BENCH_SPEC = """\
 # Invented benchmark system: a Sun-like star and three Jupiter-mass planets 3.0 mutual Hill radii apart.
@@ -102,13 +113,14 @@ def bench_spec(systems: int, end_time: float, seed: int = 20240611):
 def make_paths(spec, names=None) -> list[Path]:
     """The reference, the default and every other integrator (or only ``names``), in that order."""
     base = spec.integration
-    paths = [Path("reference", replace(base, integrator="ias15", stop_when_settled=False), True),
-             Path("default", base, False)]
-    paths += [Path(name, replace(base, integrator=name), False) for name in INTEGRATORS
-              if name != base.integrator]
+    paths = [
+        Path("reference", replace(base, integrator="ias15", stop_when_settled=False), True),
+        Path("default", base, False),
+    ]
+    paths += [Path(name, replace(base, integrator=name), False) for name in INTEGRATORS if name != base.integrator]
     if names:
         known = [p.label for p in paths]
-        names = ["default" if n == base.integrator else n for n in names]   # the default's integrator
+        names = ["default" if n == base.integrator else n for n in names]  # the default's integrator
         unknown = [n for n in names if n not in known]
         if unknown:
             raise InputError(f"--paths {','.join(unknown)}: unknown; choose from {', '.join(known)}")
@@ -121,6 +133,7 @@ def _run_one(spec_text: str, integration: dict, reference: bool, index: int):
     """Integrate one system in this process; return (record, CPU seconds, peak RSS in MB)."""
     from scatter_pop.engine.initial_conditions import draw_system
     from scatter_pop.engine.integrate import integrate_initial
+
     spec = parse_spec(spec_text, "<bench>")
     initial = draw_system(spec, index)
     c0 = time.process_time()
@@ -143,8 +156,9 @@ def run_paths(spec, paths, workers: int = 0, log=print) -> dict:
     dict
         label -> list of (record, cpu_seconds, worker_peak_rss_MB), in system order.
     """
-    jobs = [(p.label, (spec.text, asdict(p.integration), p.reference, i))
-            for i in range(spec.run.systems) for p in paths]
+    jobs = [
+        (p.label, (spec.text, asdict(p.integration), p.reference, i)) for i in range(spec.run.systems) for p in paths
+    ]
     results = {p.label: [] for p in paths}
     t0 = time.monotonic()
     if workers == 0:
@@ -169,19 +183,25 @@ def _finals(records, n_planets: int):
     """(e_final, a_final) of surviving planets in quality-selected systems, and fate fractions."""
     from scatter_pop.engine.outcome import Fate
     from scatter_pop.store.schema import quality_mask, records_to_dataset, survivor_mask
+
     ds = records_to_dataset(list(records), n_planets)
     keep = survivor_mask(ds).values
     fate = ds["fate"].values[quality_mask(ds).values]
     counts = {f.word: int(np.sum(fate == int(f))) for f in Fate}
     total = max(1, sum(counts.values()))
-    return (ds["e_final"].values[keep], ds["a_final"].values[keep],
-            {k: v / total for k, v in counts.items()}, int(quality_mask(ds).values.sum()))
+    return (
+        ds["e_final"].values[keep],
+        ds["a_final"].values[keep],
+        {k: v / total for k, v in counts.items()},
+        int(quality_mask(ds).values.sum()),
+    )
 
 
 def summarize(spec, results: dict, permutations: int = 2000, seed: int = 1) -> dict:
     """Per-path numbers: throughput, ratio to the reference, energy errors, branching, p-values."""
     from scatter_pop.store.schema import ENERGY_TOLERANCE_DEFAULT
     from scatter_pop.survey.statistics import two_sample
+
     n_planets = spec.planets.count
     ref = results["reference"]
     ref_cpu = sum(c for _, c, _ in ref)
@@ -196,12 +216,18 @@ def summarize(spec, results: dict, permutations: int = 2000, seed: int = 1) -> d
         for r in records:
             reasons[r.end_reason.word] = reasons.get(r.end_reason.word, 0) + 1
         entry = {
-            "systems": len(rows), "cpu_seconds": float(cpu.sum()), "cpu_median": float(np.median(cpu)),
+            "systems": len(rows),
+            "cpu_seconds": float(cpu.sum()),
+            "cpu_median": float(np.median(cpu)),
             "systems_per_cpu_second": len(rows) / float(cpu.sum()),
             "speedup": ref_cpu / float(cpu.sum()),
-            "energy_error_median": float(np.nanmedian(err)), "energy_error_max": float(np.nanmax(err)),
-            "above_tolerance": int(np.sum(~(err <= ENERGY_TOLERANCE_DEFAULT))), "kept": kept,
-            "fates": fates, "end_reasons": reasons, "survivors": int(e_fin.size),
+            "energy_error_median": float(np.nanmedian(err)),
+            "energy_error_max": float(np.nanmax(err)),
+            "above_tolerance": int(np.sum(~(err <= ENERGY_TOLERANCE_DEFAULT))),
+            "kept": kept,
+            "fates": fates,
+            "end_reasons": reasons,
+            "survivors": int(e_fin.size),
             "worker_peak_rss_mb": float(max(m for _, _, m in rows)),
         }
         if label != "reference" and e_fin.size >= 2 and e_ref.size >= 2:
@@ -215,18 +241,22 @@ def summarize(spec, results: dict, permutations: int = 2000, seed: int = 1) -> d
 
 def format_table(summary: dict) -> str:
     """A plain-text table of the summary (one line per path)."""
-    head = (f"{'path':<10} {'integrator':<10} {'sys/CPU-s':>9} {'x ref':>6} {'med |dE/E|':>10} "
-            f"{'max |dE/E|':>10} {'ejected':>7} {'merged':>6} {'star':>5} {'KS e':>6} {'AD e':>6} "
-            f"{'KS a':>6} {'AD a':>6} {'peak MB':>7}")
+    head = (
+        f"{'path':<10} {'integrator':<10} {'sys/CPU-s':>9} {'x ref':>6} {'med |dE/E|':>10} "
+        f"{'max |dE/E|':>10} {'ejected':>7} {'merged':>6} {'star':>5} {'KS e':>6} {'AD e':>6} "
+        f"{'KS a':>6} {'AD a':>6} {'peak MB':>7}"
+    )
     lines = [head, "-" * len(head)]
     for label, s in summary.items():
         f = s["fates"]
         p = [s.get(k) for k in ("ks_e", "ad_e", "ks_a", "ad_a")]
         ps = " ".join(f"{v:6.3f}" if v is not None else f"{'-':>6}" for v in p)
-        lines.append(f"{label:<10} {s.get('integrator', ''):<10} {s['systems_per_cpu_second']:9.3f} "
-                     f"{s['speedup']:6.2f} {s['energy_error_median']:10.1e} {s['energy_error_max']:10.1e} "
-                     f"{f['ejected']:7.3f} {f['merged']:6.3f} {f['hit_star'] + f['tidally_disrupted']:5.3f} {ps} "
-                     f"{s['worker_peak_rss_mb']:7.0f}")
+        lines.append(
+            f"{label:<10} {s.get('integrator', ''):<10} {s['systems_per_cpu_second']:9.3f} "
+            f"{s['speedup']:6.2f} {s['energy_error_median']:10.1e} {s['energy_error_max']:10.1e} "
+            f"{f['ejected']:7.3f} {f['merged']:6.3f} {f['hit_star'] + f['tidally_disrupted']:5.3f} {ps} "
+            f"{s['worker_peak_rss_mb']:7.0f}"
+        )
     return "\n".join(lines)
 
 
@@ -241,41 +271,64 @@ def measure_scaling(spec, systems: int, workers=(1, 2), log=print) -> dict:
     from pathlib import Path as _P
 
     from scatter_pop.ensemble.cluster import connect
-    from scatter_pop.spec.cluster_table import ClusterConfig
     from scatter_pop.ensemble.driver import EnsembleRun
+    from scatter_pop.spec.cluster_table import ClusterConfig
+
     text = spec.text.replace(f"systems = {spec.run.systems}", f"systems = {systems}")
     small = parse_spec(text, "<bench-scaling>")
     rows = {}
     with tempfile.TemporaryDirectory(prefix="bench_scaling_") as tmp:
         for w in workers:
             with connect(ClusterConfig(), workers=w) as client:
-                run = EnsembleRun(small, _P(tmp) / f"w{w}", client=client, progress_interval=3600.0,
-                                  log=lambda line: None)
+                run = EnsembleRun(
+                    small, _P(tmp) / f"w{w}", client=client, progress_interval=3600.0, log=lambda line: None
+                )
                 run.run()
             rows[w] = run.timings.compute
             if log:
                 log(f"bench: scaling, {w} worker(s): {systems} systems in {rows[w]:.1f} s")
     lo, hi = min(workers), max(workers)
     speedup = rows[lo] / rows[hi]
-    return {"systems": systems, "compute_seconds": {str(k): v for k, v in rows.items()},
-            "speedup": speedup, "efficiency": speedup / (hi / lo)}
+    return {
+        "systems": systems,
+        "compute_seconds": {str(k): v for k, v in rows.items()},
+        "speedup": speedup,
+        "efficiency": speedup / (hi / lo),
+    }
 
 
 # --------------------------------------------------------------------------- the whole benchmark
 def _version(package: str) -> str:
     from importlib.metadata import PackageNotFoundError, version
+
     try:
         return version(package)
     except PackageNotFoundError:
         return "unknown"
 
 
-def run_benchmark(*, quick=False, systems=None, end_time=None, workers=None, paths=None,
-                  permutations=None, scaling_systems=None, json_path=None, seed=20240611, log=print) -> dict:
+def run_benchmark(
+    *,
+    quick=False,
+    systems=None,
+    end_time=None,
+    workers=None,
+    paths=None,
+    permutations=None,
+    scaling_systems=None,
+    json_path=None,
+    seed=20240611,
+    log=print,
+) -> dict:
     """Run the benchmark, print the table, write the JSON record and return it."""
     mode = dict(QUICK if quick else FULL)
-    for key, value in (("systems", systems), ("end_time", end_time), ("workers", workers),
-                       ("permutations", permutations), ("scaling_systems", scaling_systems)):
+    for key, value in (
+        ("systems", systems),
+        ("end_time", end_time),
+        ("workers", workers),
+        ("permutations", permutations),
+        ("scaling_systems", scaling_systems),
+    ):
         if value is not None:
             mode[key] = value
     if mode["workers"] < 0:
@@ -286,8 +339,10 @@ def run_benchmark(*, quick=False, systems=None, end_time=None, workers=None, pat
         raise InputError(f"--json {json_path}: its folder does not exist")
     spec = bench_spec(mode["systems"], mode["end_time"], seed)
     chosen = make_paths(spec, paths)
-    log(f"bench: {mode['systems']} systems x {len(chosen)} paths to {mode['end_time']:g} yr "
-        f"({'quick' if quick else 'full'} mode, workers {mode['workers']})")
+    log(
+        f"bench: {mode['systems']} systems x {len(chosen)} paths to {mode['end_time']:g} yr "
+        f"({'quick' if quick else 'full'} mode, workers {mode['workers']})"
+    )
     results = run_paths(spec, chosen, workers=mode["workers"], log=log)
     summary = summarize(spec, results, permutations=mode["permutations"])
     for p in chosen:
@@ -295,20 +350,36 @@ def run_benchmark(*, quick=False, systems=None, end_time=None, workers=None, pat
         summary[p.label]["stops_early"] = not p.reference and p.integration.stop_when_settled
     log(format_table(summary))
     record = {
-        "mode": "quick" if quick else "full", "settings": mode, "seed": seed,
+        "mode": "quick" if quick else "full",
+        "settings": mode,
+        "seed": seed,
         "paths": {p.label: {"integration": asdict(p.integration), "reference": p.reference} for p in chosen},
         "summary": summary,
-        "systems": {label: [{"index": r.index, "cpu_seconds": c, "energy_error": r.energy_error,
-                             "end_reason": r.end_reason.word, "t_end": r.t_end, "survivors": r.n_survivors}
-                            for r, c, _ in rows] for label, rows in results.items()},
-        "machine": {"platform": platform.platform(), "python": sys.version.split()[0],
-                    "rebound": _version("rebound"), "cpus": os.cpu_count()},
+        "systems": {
+            label: [
+                {
+                    "index": r.index,
+                    "cpu_seconds": c,
+                    "energy_error": r.energy_error,
+                    "end_reason": r.end_reason.word,
+                    "t_end": r.t_end,
+                    "survivors": r.n_survivors,
+                }
+                for r, c, _ in rows
+            ]
+            for label, rows in results.items()
+        },
+        "machine": {
+            "platform": platform.platform(),
+            "python": sys.version.split()[0],
+            "rebound": _version("rebound"),
+            "cpus": os.cpu_count(),
+        },
     }
     if mode["scaling_systems"]:
         record["scaling"] = measure_scaling(spec, mode["scaling_systems"], log=log)
         s = record["scaling"]
-        log(f"bench: parallel efficiency 1 -> 2 workers: {100 * s['efficiency']:.0f} % "
-            f"(speed-up {s['speedup']:.2f})")
+        log(f"bench: parallel efficiency 1 -> 2 workers: {100 * s['efficiency']:.0f} % (speed-up {s['speedup']:.2f})")
     if json_path is not None:
         with open(json_path, "w", encoding="utf-8") as fh:
             json.dump(record, fh, indent=1, default=float)

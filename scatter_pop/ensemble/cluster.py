@@ -26,24 +26,50 @@ import os
 import sys
 import time
 import warnings
+from collections.abc import Iterator
 from contextlib import contextmanager
 from pathlib import Path
-from typing import TYPE_CHECKING, Iterator
+from typing import TYPE_CHECKING
 
-from scatter_pop.spec.cluster_table import (BATCH, KINDS, ClusterConfig, WalltimeWarning, toml_repr, apply_overrides,
-                             check_walltime, load_cluster_file, walltime_seconds, worker_lifetime)
+from scatter_pop.ensemble.stop_signals import (
+    check_terminated,
+    deferred_stop,
+    sigterm_unwinds,
+    silence_worker_stderr,
+    stop_requested,
+)
 from scatter_pop.errors import InputError
-from scatter_pop.ensemble.stop_signals import (check_terminated, deferred_stop, sigterm_unwinds,
-                                               silence_worker_stderr, stop_requested)
+from scatter_pop.spec.cluster_table import (
+    BATCH,
+    KINDS,
+    ClusterConfig,
+    WalltimeWarning,
+    apply_overrides,
+    check_walltime,
+    load_cluster_file,
+    toml_repr,
+    walltime_seconds,
+    worker_lifetime,
+)
 
 if TYPE_CHECKING:
     import distributed
 
-__all__ = ["ClusterConfig", "KINDS", "ALLOWED_FAILURES", "WalltimeWarning", "load_cluster_file",
-           "apply_overrides", "connect", "job_script", "configure_dask", "check_walltime"]
+__all__ = [
+    "ClusterConfig",
+    "KINDS",
+    "ALLOWED_FAILURES",
+    "WalltimeWarning",
+    "load_cluster_file",
+    "apply_overrides",
+    "connect",
+    "job_script",
+    "configure_dask",
+    "check_walltime",
+]
 
-ALLOWED_FAILURES = 5       # worker deaths a task may witness before it is declared failed
-JOB_NAME = "scatter-pop"   # name of the worker jobs in squeue / qstat
+ALLOWED_FAILURES = 5  # worker deaths a task may witness before it is declared failed
+JOB_NAME = "scatter-pop"  # name of the worker jobs in squeue / qstat
 SUBMIT_WAIT_SECONDS = 60.0
 _PLACEHOLDER_ADDRESS = "tcp://<insert-scheduler-address-here>:8786"  # dask-jobqueue's own
 
@@ -56,8 +82,10 @@ def configure_dask() -> None:
     that many worker deaths (lost jobs, retiring workers) before it is declared failed.
     """
     import dask
-    dask.config.set({"distributed.scheduler.worker-saturation": 1.0,
-                     "distributed.scheduler.allowed-failures": ALLOWED_FAILURES})
+
+    dask.config.set(
+        {"distributed.scheduler.worker-saturation": 1.0, "distributed.scheduler.allowed-failures": ALLOWED_FAILURES}
+    )
 
 
 def _source_root() -> str | None:
@@ -69,6 +97,7 @@ def _source_root() -> str | None:
 def _job_class(kind: str):
     from dask_jobqueue.pbs import PBSJob
     from dask_jobqueue.slurm import SLURMJob
+
     return SLURMJob if kind == "slurm" else PBSJob
 
 
@@ -76,18 +105,28 @@ def _job_kwargs(c: ClusterConfig) -> dict:
     wall = walltime_seconds(c.walltime)
     lifetime, stagger = worker_lifetime(wall)
     prologue = list(c.job_script_prologue)
-    if _source_root() is not None:   # workers import scatter_pop from the same checkout
+    if _source_root() is not None:  # workers import scatter_pop from the same checkout
         prologue.append(f"export PYTHONPATH={_source_root()}${{PYTHONPATH:+:$PYTHONPATH}}")
     walltime = c.walltime
-    if c.kind == "pbs":              # PBS takes hours beyond 24, not days
-        walltime = "%02d:%02d:%02d" % (wall // 3600, wall % 3600 // 60, wall % 60)
-    kwargs = dict(queue=c.queue, account=c.account, cores=c.cores, processes=c.cores,
-                  memory=c.memory, walltime=walltime, job_name=JOB_NAME, nanny=True,
-                  job_script_prologue=prologue, job_extra_directives=list(c.job_extra_directives),
-                  interface=c.interface, log_directory=c.log_directory,
-                  local_directory=c.local_directory, python=c.python or sys.executable,
-                  worker_extra_args=["--lifetime", f"{lifetime:.0f}s",
-                                     "--lifetime-stagger", f"{stagger:.0f}s"])
+    if c.kind == "pbs":  # PBS takes hours beyond 24, not days
+        walltime = f"{wall // 3600:02d}:{wall % 3600 // 60:02d}:{wall % 60:02d}"
+    kwargs = dict(
+        queue=c.queue,
+        account=c.account,
+        cores=c.cores,
+        processes=c.cores,
+        memory=c.memory,
+        walltime=walltime,
+        job_name=JOB_NAME,
+        nanny=True,
+        job_script_prologue=prologue,
+        job_extra_directives=list(c.job_extra_directives),
+        interface=c.interface,
+        log_directory=c.log_directory,
+        local_directory=c.local_directory,
+        python=c.python or sys.executable,
+        worker_extra_args=["--lifetime", f"{lifetime:.0f}s", "--lifetime-stagger", f"{stagger:.0f}s"],
+    )
     if c.kind == "pbs":
         kwargs["resource_spec"] = c.resource_spec
     return kwargs
@@ -100,30 +139,32 @@ def job_script(config: ClusterConfig, *, longest_task_seconds: float | None = No
     dask-jobqueue's placeholder (the real one is known only when the run starts).
     """
     if config.kind not in BATCH:
-        raise InputError(f"cluster.kind = {toml_repr(config.kind)}: a job script exists only for "
-                         "kind slurm or pbs")
+        raise InputError(f"cluster.kind = {toml_repr(config.kind)}: a job script exists only for kind slurm or pbs")
     check_walltime(config.walltime, longest_task_seconds)
     kwargs = _job_kwargs(config)
     kwargs.pop("nanny")
     return _job_class(config.kind)(_PLACEHOLDER_ADDRESS, name=f"{JOB_NAME}-0", **kwargs).job_script()
 
 
-_SUBMIT_ERRORS: dict[str, list[str]] = {}   # scheduler address -> refused submissions
+_SUBMIT_ERRORS: dict[str, list[str]] = {}  # scheduler address -> refused submissions
 
 
 def _recording(job_cls):
     """``job_cls`` whose refused submissions are recorded, so connect() can report them."""
+
     class Recorded(job_cls):
         async def start(self):
             try:
                 await super().start()
             except RuntimeError as exc:
                 from distributed.core import Status
-                self.status = Status.failed       # lets the cluster close cleanly afterwards
+
+                self.status = Status.failed  # lets the cluster close cleanly afterwards
                 text = str(exc).split("stderr:", 1)[-1]
                 lines = [ln.strip() for ln in text.splitlines() if ln.strip()]
                 _SUBMIT_ERRORS.setdefault(self.scheduler, []).append(" | ".join(lines[:2]))
                 raise
+
     Recorded.__name__ = Recorded.__qualname__ = job_cls.__name__
     return Recorded
 
@@ -135,15 +176,20 @@ def _wait_for_submission(cluster, kind: str) -> None:
     while time.monotonic() < deadline:
         errors = _SUBMIT_ERRORS.get(cluster.scheduler_address)
         if errors:
-            raise InputError(f"cluster: {command} refused the worker job ({errors[0]}); check "
-                             "queue, account, cores, memory and walltime (--dry-run prints the "
-                             "job script)")
+            raise InputError(
+                f"cluster: {command} refused the worker job ({errors[0]}); check "
+                "queue, account, cores, memory and walltime (--dry-run prints the "
+                "job script)"
+            )
         if any(getattr(job, "job_id", None) for job in cluster.workers.values()):
             return
         check_terminated()
         time.sleep(0.1)
-    warnings.warn(f"no worker job submitted by {command} within {SUBMIT_WAIT_SECONDS:.0f} s; "
-                  "continuing to wait for workers", RuntimeWarning, stacklevel=3)
+    warnings.warn(
+        f"no worker job submitted by {command} within {SUBMIT_WAIT_SECONDS:.0f} s; continuing to wait for workers",
+        RuntimeWarning,
+        stacklevel=3,
+    )
 
 
 def _close(client, cluster, kind: str) -> None:
@@ -154,7 +200,7 @@ def _close(client, cluster, kind: str) -> None:
             if terminating and kind == "local":
                 try:
                     client.run(silence_worker_stderr, on_error="ignore")
-                except (OSError, RuntimeError):   # scheduler already gone: nothing left to quiet
+                except (OSError, RuntimeError):  # scheduler already gone: nothing left to quiet
                     pass
             client.close()
     finally:
@@ -166,22 +212,33 @@ def _close(client, cluster, kind: str) -> None:
 def _start_cluster(c: ClusterConfig):
     if c.kind == "local":
         from distributed import LocalCluster
+
         n = c.workers or len(os.sched_getaffinity(0))
         extra = {"local_directory": c.local_directory} if c.local_directory else {}
         # preload: the workers run stop_signals.dask_setup at their start (Ctrl-C is the driver's)
-        return LocalCluster(n_workers=n, threads_per_worker=1, processes=True, preload=["scatter_pop.ensemble.stop_signals"],
-                            dashboard_address=f":{c.dashboard_port}", **extra)
+        return LocalCluster(
+            n_workers=n,
+            threads_per_worker=1,
+            processes=True,
+            preload=["scatter_pop.ensemble.stop_signals"],
+            dashboard_address=f":{c.dashboard_port}",
+            **extra,
+        )
     from dask_jobqueue import PBSCluster, SLURMCluster
+
     cls = SLURMCluster if c.kind == "slurm" else PBSCluster
-    cluster = cls(job_cls=_recording(_job_class(c.kind)),
-                  scheduler_options={"dashboard_address": f":{c.dashboard_port}"},
-                  **_job_kwargs(c))
+    cluster = cls(
+        job_cls=_recording(_job_class(c.kind)),
+        scheduler_options={"dashboard_address": f":{c.dashboard_port}"},
+        **_job_kwargs(c),
+    )
     cluster.adapt(minimum_jobs=c.minimum_jobs, maximum_jobs=c.maximum_jobs)
     return cluster
 
 
 def _client_for_address(address: str):
     from distributed import Client
+
     try:
         if address.endswith(".json"):
             if not Path(address).is_file():
@@ -189,26 +246,40 @@ def _client_for_address(address: str):
             return Client(scheduler_file=address)
         return Client(address)
     except OSError as exc:
-        raise InputError(f"cluster.address = {toml_repr(address)}: no Dask scheduler answered "
-                         f"({type(exc).__name__})") from None
+        raise InputError(
+            f"cluster.address = {toml_repr(address)}: no Dask scheduler answered ({type(exc).__name__})"
+        ) from None
 
 
 def _warn_scheduler_settings(client) -> None:
     def settings():
         import dask
-        return (dask.config.get("distributed.scheduler.worker-saturation"),
-                dask.config.get("distributed.scheduler.allowed-failures"))
+
+        return (
+            dask.config.get("distributed.scheduler.worker-saturation"),
+            dask.config.get("distributed.scheduler.allowed-failures"),
+        )
+
     saturation, failures = client.run_on_scheduler(settings)
     if float(saturation) != 1.0 or int(failures) < ALLOWED_FAILURES:
-        warnings.warn(f"the scheduler runs with worker-saturation {saturation} and allowed-failures "
-                      f"{failures}; start it with DASK_DISTRIBUTED__SCHEDULER__WORKER_SATURATION=1.0 "
-                      f"DASK_DISTRIBUTED__SCHEDULER__ALLOWED_FAILURES={ALLOWED_FAILURES} so a lost "
-                      "worker costs only its own task", RuntimeWarning, stacklevel=4)
+        warnings.warn(
+            f"the scheduler runs with worker-saturation {saturation} and allowed-failures "
+            f"{failures}; start it with DASK_DISTRIBUTED__SCHEDULER__WORKER_SATURATION=1.0 "
+            f"DASK_DISTRIBUTED__SCHEDULER__ALLOWED_FAILURES={ALLOWED_FAILURES} so a lost "
+            "worker costs only its own task",
+            RuntimeWarning,
+            stacklevel=4,
+        )
 
 
 @contextmanager
-def connect(config: ClusterConfig, *, workers: int | None = None, scheduler: str | None = None,
-            longest_task_seconds: float | None = None) -> Iterator["distributed.Client"]:
+def connect(
+    config: ClusterConfig,
+    *,
+    workers: int | None = None,
+    scheduler: str | None = None,
+    longest_task_seconds: float | None = None,
+) -> Iterator[distributed.Client]:
     """Start (or attach to) the cluster and yield a Client; on exit close it and cancel worker jobs.
 
     Parameters
@@ -233,10 +304,11 @@ def connect(config: ClusterConfig, *, workers: int | None = None, scheduler: str
         check_walltime(config.walltime, longest_task_seconds)
     configure_dask()
     from distributed import Client
+
     with sigterm_unwinds():
         cluster = client = None
         try:
-            with deferred_stop():       # starting up is not interrupted half-way
+            with deferred_stop():  # starting up is not interrupted half-way
                 if config.kind == "address":
                     client = _client_for_address(config.address)
                     _warn_scheduler_settings(client)
@@ -247,5 +319,5 @@ def connect(config: ClusterConfig, *, workers: int | None = None, scheduler: str
                         _wait_for_submission(cluster, config.kind)
             yield client
         finally:
-            with deferred_stop():       # nor is the clean-up
+            with deferred_stop():  # nor is the clean-up
                 _close(client, cluster, config.kind)

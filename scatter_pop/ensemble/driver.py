@@ -40,19 +40,19 @@ from pathlib import Path
 
 import xarray as xr
 
-from scatter_pop.errors import InputError
 from scatter_pop.engine.outcome import EndReason, SystemRecord
 from scatter_pop.ensemble.plan import Plan, Task, make_plan
 from scatter_pop.ensemble.progress import Progress
 from scatter_pop.ensemble.worker import deaths_on_scheduler, failed_record, integrate_batch
-from scatter_pop.store.schema import records_to_dataset
+from scatter_pop.errors import InputError
 from scatter_pop.spec.reader import EnsembleSpec, load_spec, parse_spec
 from scatter_pop.store.run_folder import atomic_write_text, open_ensemble, prepare_folder
+from scatter_pop.store.schema import records_to_dataset
 
 __all__ = ["run_ensemble", "EnsembleRun", "default_out"]
 
-WORKER_POLL_SECONDS = 5.0          # how often the driver re-reads the number of workers
-FINISHED_POLL_SECONDS = 0.05       # how often the driver looks for finished tasks (and stop signals)
+WORKER_POLL_SECONDS = 5.0  # how often the driver re-reads the number of workers
+FINISHED_POLL_SECONDS = 0.05  # how often the driver looks for finished tasks (and stop signals)
 
 
 def default_out(spec: EnsembleSpec) -> Path:
@@ -67,10 +67,10 @@ def default_out(spec: EnsembleSpec) -> Path:
 class Timings:
     """Where the driver's wall-clock time went (s); filled by :meth:`EnsembleRun.run`."""
 
-    connect: float = 0.0               # starting or attaching to the cluster
-    compute: float = 0.0               # first submission to last part written
-    gather: float = 0.0                # writing ensemble.nc
-    workers: int = 0                   # workers seen when the computation started
+    connect: float = 0.0  # starting or attaching to the cluster
+    compute: float = 0.0  # first submission to last part written
+    gather: float = 0.0  # writing ensemble.nc
+    workers: int = 0  # workers seen when the computation started
     systems_computed: int = 0
     integration_seconds: float = 0.0  # sum of wall_seconds of the systems computed
     events: list = field(default_factory=list)
@@ -99,12 +99,27 @@ class EnsembleRun:
         Receives each message line (default ``print``).
     """
 
-    def __init__(self, spec: EnsembleSpec, out, *, client=None, workers=None, scheduler=None,
-                 cluster=None, fresh=False, extend=False, retry_failed=False, batch_size=None,
-                 progress_interval=10.0, log=print):
+    def __init__(
+        self,
+        spec: EnsembleSpec,
+        out,
+        *,
+        client=None,
+        workers=None,
+        scheduler=None,
+        cluster=None,
+        fresh=False,
+        extend=False,
+        retry_failed=False,
+        batch_size=None,
+        progress_interval=10.0,
+        log=print,
+    ):
         if parse_spec(spec.text, spec.source or "<spec>") != spec:
-            raise InputError("spec: the EnsembleSpec differs from its own TOML text (spec.text), which "
-                             "is what the run folder keeps; make specs with load_spec or parse_spec")
+            raise InputError(
+                "spec: the EnsembleSpec differs from its own TOML text (spec.text), which "
+                "is what the run folder keeps; make specs with load_spec or parse_spec"
+            )
         self.spec, self.client, self.log = spec, client, log
         self.workers, self.scheduler, self.cluster = workers, scheduler, cluster
         self.fresh, self.extend, self.retry_failed = fresh, extend, retry_failed
@@ -117,14 +132,22 @@ class EnsembleRun:
     def plan(self) -> Plan:
         """What :meth:`run` would do, changing nothing on disk (``--dry-run``)."""
         folder = prepare_folder(self.spec, self.out, fresh=self.fresh, dry_run=True, log=self.log)
-        if self.fresh and folder.is_run_folder():          # would have been moved aside
+        if self.fresh and folder.is_run_folder():  # would have been moved aside
             return Plan(self.spec, folder, [], self.batch_size, self.extend, self.retry_failed)
-        return make_plan(self.spec, folder, extend=self.extend, retry_failed=self.retry_failed,
-                         batch_size=self.batch_size, read_only=True, log=self.log)
+        return make_plan(
+            self.spec,
+            folder,
+            extend=self.extend,
+            retry_failed=self.retry_failed,
+            batch_size=self.batch_size,
+            read_only=True,
+            log=self.log,
+        )
 
     def run(self) -> xr.Dataset:
         """Compute what the folder lacks, gather ensemble.nc and return it (loaded)."""
         from scatter_pop.ensemble.stop_signals import check_terminated, deferred_stop
+
         # A stop signal (SIGTERM inside connect(); SIGINT too under stop_signals.stop_signals, as in
         # `scatter-pop run`) is acted upon only between whole steps, never while a part file, a
         # merged part or ensemble.nc is being written
@@ -133,8 +156,14 @@ class EnsembleRun:
             with folder.lock():
                 folder.remove_stale_tmp()
                 atomic_write_text(self.spec.text, folder.spec_path)
-                plan = make_plan(self.spec, folder, extend=self.extend, retry_failed=self.retry_failed,
-                                 batch_size=self.batch_size, log=self.log)
+                plan = make_plan(
+                    self.spec,
+                    folder,
+                    extend=self.extend,
+                    retry_failed=self.retry_failed,
+                    batch_size=self.batch_size,
+                    log=self.log,
+                )
                 check_terminated()
                 if plan.has_work():
                     folder.checkpoints_dir.mkdir(exist_ok=True)
@@ -156,14 +185,17 @@ class EnsembleRun:
             return
         from scatter_pop.ensemble.cluster import connect
         from scatter_pop.ensemble.stop_signals import deferred_stop
+
         config = self.cluster if self.cluster is not None else self.spec.cluster
         widest = max([plan.batch_size, 1] + [len(t.indices) for t in plan.redo])
         longest = self.spec.integration.wall_seconds_max * widest
         t0 = time.monotonic()
         # a stop signal is acted upon only between whole steps of the driver (see _finished), never
         # in the middle of writing a part file
-        with connect(config, workers=self.workers, scheduler=self.scheduler,
-                     longest_task_seconds=longest) as client, deferred_stop():
+        with (
+            connect(config, workers=self.workers, scheduler=self.scheduler, longest_task_seconds=longest) as client,
+            deferred_stop(),
+        ):
             self.timings.connect = time.monotonic() - t0
             self._drive(client, plan)
 
@@ -177,14 +209,20 @@ class EnsembleRun:
             log(f"dashboard: {client.dashboard_link}{hint}")
         nworkers = len(client.nthreads())
         self.timings.workers = nworkers
-        folder.write_state(pid=os.getpid(), host=socket.gethostname(), workers=nworkers,
-                           scheduler=client.scheduler.address, finished=None,
-                           started=time.strftime("%Y-%m-%dT%H:%M:%S%z"))
+        folder.write_state(
+            pid=os.getpid(),
+            host=socket.gethostname(),
+            workers=nworkers,
+            scheduler=client.scheduler.address,
+            finished=None,
+            started=time.strftime("%Y-%m-%dT%H:%M:%S%z"),
+        )
         log(plan.summary())
         progress = Progress(spec.run.systems, plan.tally, self.progress_interval, emit=log)
         pending: deque[Task] = deque()
         inflight = {}
         from distributed import as_completed
+
         done_iter = as_completed()
         last_poll = time.monotonic()
         token = uuid.uuid4().hex[:8]
@@ -199,8 +237,9 @@ class EnsembleRun:
                 if task is None:
                     return
                 key = f"integrate-{task.indices[0]}-{task.indices[-1]}-{token}-{uuid.uuid4().hex[:6]}"
-                fut = client.submit(integrate_batch, spec, task.indices, str(folder.path), task.budgets,
-                                    key=key, pure=False)
+                fut = client.submit(
+                    integrate_batch, spec, task.indices, str(folder.path), task.budgets, key=key, pure=False
+                )
                 inflight[fut] = task
                 done_iter.add(fut)
 
@@ -220,8 +259,10 @@ class EnsembleRun:
             elif fut.status == "error":
                 self._failure(plan, task, fut, self._deaths(client, fut), pending)
             else:
-                raise RuntimeError(f"task for systems {task.indices[0]}-{task.indices[-1]} was "
-                                   f"{fut.status} (lost the scheduler?); rerun to resume")
+                raise RuntimeError(
+                    f"task for systems {task.indices[0]}-{task.indices[-1]} was "
+                    f"{fut.status} (lost the scheduler?); rerun to resume"
+                )
             fut.release()
             del fut
             progress.update()
@@ -238,11 +279,15 @@ class EnsembleRun:
 
     def _failure(self, plan: Plan, task: Task, fut, deaths: int, pending: deque) -> None:
         from distributed import KilledWorker
+
         exc = fut.exception()
         killed = isinstance(exc, KilledWorker)
         span = f"{task.indices[0]}-{task.indices[-1]}" if len(task.indices) > 1 else f"{task.indices[0]}"
-        why = (f"workers died {deaths} times running it" if killed
-               else f"{type(exc).__name__}: {(str(exc).splitlines() or [''])[0]}")
+        why = (
+            f"workers died {deaths} times running it"
+            if killed
+            else f"{type(exc).__name__}: {(str(exc).splitlines() or [''])[0]}"
+        )
         if len(task.indices) > 1:
             self.log(f"systems {span}: {why}; retrying each system alone")
             pending.extendleft(reversed(task.split()))
@@ -252,8 +297,10 @@ class EnsembleRun:
             tb = "".join(traceback.format_exception(type(exc), exc, fut.traceback()))
             with open(plan.folder.failure_log, "a", encoding="utf-8") as fh:
                 fh.write(f"--- system {index} ({time.strftime('%Y-%m-%dT%H:%M:%S%z')})\n{tb}\n")
-        self.log(f"system {index}: {why}; recorded as failed"
-                 + ("" if killed else f" (traceback in {plan.folder.failure_log.name})"))
+        self.log(
+            f"system {index}: {why}; recorded as failed"
+            + ("" if killed else f" (traceback in {plan.folder.failure_log.name})")
+        )
         self._store(plan, task, [failed_record(self.spec, index, max(deaths, 1))])
 
     def _store(self, plan: Plan, task: Task, records: list[SystemRecord]) -> None:
@@ -261,7 +308,7 @@ class EnsembleRun:
         plan.store(task, data)
         self.timings.systems_computed += len(records)
         self.timings.integration_seconds += float(data["wall_seconds"].sum())
-        for r in records:       # a failed system keeps its checkpoint: --retry-failed continues it
+        for r in records:  # a failed system keeps its checkpoint: --retry-failed continues it
             if r.end_reason not in (EndReason.CAPPED, EndReason.FAILED):
                 plan.folder.checkpoint_path(r.index).unlink(missing_ok=True)
 
@@ -275,6 +322,7 @@ def _finished(done_iter):
     here, between two results, within ``FINISHED_POLL_SECONDS``.
     """
     from scatter_pop.ensemble.stop_signals import check_terminated
+
     while True:
         check_terminated()
         if done_iter.has_ready():

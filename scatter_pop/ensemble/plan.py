@@ -53,19 +53,25 @@ class Task:
 
     indices: tuple[int, ...]
     redo: bool = False
-    budgets: tuple[float, ...] | None = None     # per system wall_seconds_max, s (None: the spec's)
+    budgets: tuple[float, ...] | None = None  # per system wall_seconds_max, s (None: the spec's)
 
-    def split(self) -> list["Task"]:
+    def split(self) -> list[Task]:
         budgets = self.budgets or (None,) * len(self.indices)
-        return [Task((i,), self.redo, None if b is None else (b,))
-                for i, b in zip(self.indices, budgets)]
+        return [Task((i,), self.redo, None if b is None else (b,)) for i, b in zip(self.indices, budgets)]
 
 
 class Plan:
     """Work left in a run folder and the bookkeeping of its results."""
 
-    def __init__(self, spec: EnsembleSpec, folder: RunFolder, parts: list[Part], batch_size: int,
-                 extend: bool, retry_failed: bool):
+    def __init__(
+        self,
+        spec: EnsembleSpec,
+        folder: RunFolder,
+        parts: list[Part],
+        batch_size: int,
+        extend: bool,
+        retry_failed: bool,
+    ):
         self.spec, self.folder, self.batch_size = spec, folder, batch_size
         n = spec.run.systems
         self.parts = {p.first: p for p in parts}
@@ -168,7 +174,7 @@ class Plan:
             hi += 1
         if hi - lo + 1 < CONSOLIDATE_PARTS:
             return
-        block = [self.parts.pop(k) for k in firsts[lo:hi + 1]]
+        block = [self.parts.pop(k) for k in firsts[lo : hi + 1]]
         merged = self.folder.consolidate(block, self.spec)
         self.parts[merged.first] = merged
 
@@ -180,15 +186,25 @@ class Plan:
         words = [f"{self.n_new} new systems"]
         if self.n_continue:
             words.append(f"{self.n_continue} capped/failed systems again")
-        text = (f"run folder {self.folder.path}: {self.tally.systems}/{n} systems on disk; computing "
-                f"{' and '.join(words)}; batch size {self.batch_size or 'automatic'}")
+        text = (
+            f"run folder {self.folder.path}: {self.tally.systems}/{n} systems on disk; computing "
+            f"{' and '.join(words)}; batch size {self.batch_size or 'automatic'}"
+        )
         if self.kept_capped:
             text += f"; {self.kept_capped} capped systems kept as they are (continue them with --extend)"
         return text
 
 
-def make_plan(spec: EnsembleSpec, folder: RunFolder, *, extend: bool = False, retry_failed: bool = False,
-              batch_size: int = 0, read_only: bool = False, log=print) -> Plan:
+def make_plan(
+    spec: EnsembleSpec,
+    folder: RunFolder,
+    *,
+    extend: bool = False,
+    retry_failed: bool = False,
+    batch_size: int = 0,
+    read_only: bool = False,
+    log=print,
+) -> Plan:
     """Read the folder's parts and plan the rest of the run.
 
     With ``read_only`` (dry runs) damaged parts are only reported, not moved aside.

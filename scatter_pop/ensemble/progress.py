@@ -70,8 +70,7 @@ class Tally:
 
     def outcome_words(self) -> str:
         f = self.fates
-        return (f"ejected {f[Fate.EJECTED]} merged {f[Fate.MERGED]} "
-                f"star {f[Fate.HIT_STAR] + f[Fate.DISRUPTED]}")
+        return f"ejected {f[Fate.EJECTED]} merged {f[Fate.MERGED]} star {f[Fate.HIT_STAR] + f[Fate.DISRUPTED]}"
 
 
 class Progress:
@@ -109,9 +108,11 @@ class Progress:
         t = self.tally
         pct = 100.0 * t.systems / self.total if self.total else 100.0
         elapsed = time.monotonic() - self.start
-        return (f"[scatter-pop] {t.systems}/{self.total} systems ({pct:.1f} %) | {t.outcome_words()} | "
-                f"capped {len(t.capped)} failed {len(t.failed)} | {format_duration(elapsed)} elapsed, "
-                f"ETA {format_duration(self.eta_seconds())}")
+        return (
+            f"[scatter-pop] {t.systems}/{self.total} systems ({pct:.1f} %) | {t.outcome_words()} | "
+            f"capped {len(t.capped)} failed {len(t.failed)} | {format_duration(elapsed)} elapsed, "
+            f"ETA {format_duration(self.eta_seconds())}"
+        )
 
     def update(self, force: bool = False) -> None:
         now = time.monotonic()

@@ -19,13 +19,22 @@ import signal
 import sys
 import threading
 import warnings
+from collections.abc import Iterator
 from contextlib import AbstractContextManager, contextmanager
-from typing import Iterator
 
-__all__ = ["deferred_stop", "check_terminated", "stop_signals", "sigterm_unwinds", "stop_requested",
-           "dask_setup", "worker_ignores_sigint", "TERM_GRACE_SECONDS", "RESUME_HINT"]
+__all__ = [
+    "deferred_stop",
+    "check_terminated",
+    "stop_signals",
+    "sigterm_unwinds",
+    "stop_requested",
+    "dask_setup",
+    "worker_ignores_sigint",
+    "TERM_GRACE_SECONDS",
+    "RESUME_HINT",
+]
 
-TERM_GRACE_SECONDS = 20.0   # clean-up time after a stop signal before the process ends itself
+TERM_GRACE_SECONDS = 20.0  # clean-up time after a stop signal before the process ends itself
 RESUME_HINT = "finished parts are kept, rerun the same command to resume"
 
 
@@ -33,12 +42,12 @@ class _Activation:
     """One stop-signal handling (connect()'s, or a command's): the signal received, the watchdog."""
 
     def __init__(self, prog: str) -> None:
-        self.prog = prog                 # names the process in the line the user gets
-        self.signum: int | None = None   # the first stop signal
-        self.exit: SystemExit | None = None   # raised for it (once)
-        self.wake = threading.Event()    # wakes the watchdog: a signal, or leaving without one
-        self.hurry = threading.Event()   # SIGINT again: end now, without the rest of the clean-up
-        self.said = threading.Lock()     # the user's one line comes from one thread only
+        self.prog = prog  # names the process in the line the user gets
+        self.signum: int | None = None  # the first stop signal
+        self.exit: SystemExit | None = None  # raised for it (once)
+        self.wake = threading.Event()  # wakes the watchdog: a signal, or leaving without one
+        self.hurry = threading.Event()  # SIGINT again: end now, without the rest of the clean-up
+        self.said = threading.Lock()  # the user's one line comes from one thread only
         self.reported = False
 
     @property
@@ -50,9 +59,9 @@ class _Activation:
         return f"{self.prog}: {word}; {RESUME_HINT}"
 
 
-_CURRENT: _Activation | None = None    # the active handling (main thread's connect() or command)
-_DEFER = 0                             # depth of deferred_stop() blocks in the main thread
-_WORKER_IGNORES_SIGINT = False         # set in local worker processes by dask_setup
+_CURRENT: _Activation | None = None  # the active handling (main thread's connect() or command)
+_DEFER = 0  # depth of deferred_stop() blocks in the main thread
+_WORKER_IGNORES_SIGINT = False  # set in local worker processes by dask_setup
 
 
 def _quiet_process() -> None:
@@ -60,6 +69,7 @@ def _quiet_process() -> None:
     down would report from now on (log records, exceptions in threads, exceptions in ``__del__``,
     warnings) is not for the user, who gets one line; the clean-up itself still runs."""
     import logging
+
     logging.disable(logging.CRITICAL)
     threading.excepthook = lambda args: None
     sys.unraisablehook = lambda unraisable: None
@@ -141,6 +151,7 @@ def _release_semaphores() -> None:
     shares the user's terminal, unlinks them itself and prints a "leaked semaphore" warning there.
     Uses multiprocessing's finalizer registry (private; skipped if it is not there)."""
     from multiprocessing import synchronize, util
+
     cleanup = getattr(getattr(synchronize, "SemLock", None), "_cleanup", None)
     registry = getattr(util, "_finalizer_registry", None)
     if cleanup is None or not isinstance(registry, dict):
@@ -149,7 +160,7 @@ def _release_semaphores() -> None:
         if getattr(finalizer, "_callback", None) is cleanup:
             try:
                 finalizer()
-            except Exception:     # already unlinked, tracker gone: nothing left to do
+            except Exception:  # already unlinked, tracker gone: nothing left to do
                 pass
 
 
@@ -165,18 +176,24 @@ def _hard_exit(act: _Activation, status: int, line: str) -> None:
 
 def _grace_watchdog(act: _Activation) -> None:
     act.wake.wait()
-    if act.signum is None:            # left without a stop signal
+    if act.signum is None:  # left without a stop signal
         return
     # If the clean-up hangs (a batch system that does not answer, a worker that does not stop),
     # or the user presses Ctrl-C again, end the process: every finished part is already on disk,
     # so a rerun resumes; local worker processes are killed first, batch jobs end when their
     # workers lose the scheduler.
     if act.hurry.wait(TERM_GRACE_SECONDS):
-        _hard_exit(act, 128 + signal.SIGINT,
-                   f"{act.prog}: interrupted again; stopped without finishing the clean-up ({RESUME_HINT})")
+        _hard_exit(
+            act,
+            128 + signal.SIGINT,
+            f"{act.prog}: interrupted again; stopped without finishing the clean-up ({RESUME_HINT})",
+        )
     name = signal.Signals(act.signum).name
-    _hard_exit(act, 128 + act.signum, f"{act.prog}: clean-up after {name} took over "
-                                      f"{TERM_GRACE_SECONDS:.0f} s; exiting ({RESUME_HINT})")
+    _hard_exit(
+        act,
+        128 + act.signum,
+        f"{act.prog}: clean-up after {name} took over {TERM_GRACE_SECONDS:.0f} s; exiting ({RESUME_HINT})",
+    )
 
 
 @contextmanager
@@ -188,11 +205,10 @@ def _stopping(signums: tuple[int, ...], prog: str, final: bool) -> Iterator[None
     and the handlers stay, so that Ctrl-C pressed again still ends the process at once."""
     global _CURRENT
     if threading.current_thread() is not threading.main_thread() or _CURRENT is not None:
-        yield                             # not the main thread, or an outer handling is active
+        yield  # not the main thread, or an outer handling is active
         return
     act = _Activation(prog)
-    threading.Thread(target=_grace_watchdog, args=(act,), name="scatter-pop stop grace",
-                     daemon=True).start()
+    threading.Thread(target=_grace_watchdog, args=(act,), name="scatter-pop stop grace", daemon=True).start()
     handler = functools.partial(_on_signal, act)
     previous = {}
     for signum in signums:
@@ -203,7 +219,7 @@ def _stopping(signums: tuple[int, ...], prog: str, final: bool) -> Iterator[None
     try:
         yield
     except SystemExit as exc:
-        if exc is act.exit and final:   # a command's stop: the user's one line
+        if exc is act.exit and final:  # a command's stop: the user's one line
             _say(act, act.stopped_line())
         raise
     finally:
@@ -214,8 +230,8 @@ def _stopping(signums: tuple[int, ...], prog: str, final: bool) -> Iterator[None
             for signum, old in previous.items():
                 signal.signal(signum, old if old is not None else signal.SIG_DFL)
         if act.signum is None:
-            act.wake.set()                # ends the watchdog
-    if act.signum is not None and not act.raised:   # recorded in a deferred block just left
+            act.wake.set()  # ends the watchdog
+    if act.signum is not None and not act.raised:  # recorded in a deferred block just left
         exc = _terminate(act)
         if final:
             _say(act, act.stopped_line())
@@ -274,8 +290,6 @@ def silence_worker_stderr() -> None:
     fd = os.open(os.devnull, os.O_WRONLY)
     os.dup2(fd, 2)
     os.close(fd)
-
-
 
 
 def stop_requested() -> bool:

@@ -22,8 +22,9 @@ __all__ = ["integrate_batch", "failed_record", "deaths_on_scheduler", "FAULT_ENV
 FAULT_ENV = "SCATTER_POP_TEST_KILL_SYSTEMS"
 
 
-def integrate_batch(spec: EnsembleSpec, indices: tuple[int, ...], folder: str,
-                    budgets: tuple[float, ...] | None = None) -> list[SystemRecord]:
+def integrate_batch(
+    spec: EnsembleSpec, indices: tuple[int, ...], folder: str, budgets: tuple[float, ...] | None = None
+) -> list[SystemRecord]:
     """Worker task: integrate systems ``indices`` (together, if the back end does so).
 
     Parameters
@@ -39,6 +40,7 @@ def integrate_batch(spec: EnsembleSpec, indices: tuple[int, ...], folder: str,
     """
     from scatter_pop.engine.integrate import integrate_systems
     from scatter_pop.ensemble.stop_signals import worker_ignores_sigint
+
     doomed = {int(x) for x in os.environ.get(FAULT_ENV, "").split(",") if x.strip()}
     run = RunFolder(folder)
     together = backend(spec.integration.integrator).integrates_together
@@ -46,14 +48,16 @@ def integrate_batch(spec: EnsembleSpec, indices: tuple[int, ...], folder: str,
     groups = [positions] if together else [[k] for k in positions]
     records = []
     for group in groups:
-        if any(indices[k] in doomed for k in group):     # test-only fault injection
+        if any(indices[k] in doomed for k in group):  # test-only fault injection
             os.kill(os.getpid(), signal.SIGKILL)
         while True:
             try:
                 records += integrate_systems(
-                    spec, [indices[k] for k in group],
+                    spec,
+                    [indices[k] for k in group],
                     checkpoint_paths=[run.checkpoint_path(indices[k]) for k in group],
-                    budgets=None if budgets is None else [budgets[k] for k in group])
+                    budgets=None if budgets is None else [budgets[k] for k in group],
+                )
                 break
             except KeyboardInterrupt:
                 # REBOUND turns a SIGINT during its integration into KeyboardInterrupt.  A local
@@ -74,13 +78,33 @@ def deaths_on_scheduler(key, dask_scheduler=None) -> int:
 def failed_record(spec: EnsembleSpec, index: int, attempts: int) -> SystemRecord:
     """Record of a system with no result: initial conditions drawn again, finals missing (NaN)."""
     from scatter_pop.engine.initial_conditions import draw_system
+
     ic = draw_system(spec, index)
     nan = math.nan
     planets = tuple(
-        PlanetRecord(mass_initial=float(m), a_initial=float(a), e_initial=float(e), inc_initial=float(i),
-                     radius_initial=float(r), mass_final=nan, a_final=nan, e_final=nan, inc_final=nan,
-                     q_final=nan, radius_final=nan, fate=Fate.SURVIVED, t_fate=nan)   # fate: -1 in the dataset
-        for m, a, e, i, r in zip(ic.mass, ic.a, ic.e, ic.inc, ic.radius))
-    return SystemRecord(index=index, seed=int(ic.seed), planets=planets, t_end=nan,
-                        end_reason=EndReason.FAILED, attempts=attempts,
-                        integrator=spec.integration.integrator)
+        PlanetRecord(
+            mass_initial=float(m),
+            a_initial=float(a),
+            e_initial=float(e),
+            inc_initial=float(i),
+            radius_initial=float(r),
+            mass_final=nan,
+            a_final=nan,
+            e_final=nan,
+            inc_final=nan,
+            q_final=nan,
+            radius_final=nan,
+            fate=Fate.SURVIVED,
+            t_fate=nan,
+        )  # fate: -1 in the dataset
+        for m, a, e, i, r in zip(ic.mass, ic.a, ic.e, ic.inc, ic.radius)
+    )
+    return SystemRecord(
+        index=index,
+        seed=int(ic.seed),
+        planets=planets,
+        t_end=nan,
+        end_reason=EndReason.FAILED,
+        attempts=attempts,
+        integrator=spec.integration.integrator,
+    )

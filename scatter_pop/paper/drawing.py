@@ -23,19 +23,39 @@ import matplotlib
 import numpy as np
 from matplotlib.figure import Figure
 
-from scatter_pop.target.branches import BRANCH_LABELS, BRANCHES
 from scatter_pop.paper.figure_data import Table
+from scatter_pop.target.branches import BRANCH_LABELS, BRANCHES
 
-__all__ = ["OKABE_ITO", "BRANCH_STYLE", "SINGLE_COLUMN_IN", "DOUBLE_COLUMN_IN", "STYLE", "style",
-           "new_figure", "ensemble_colour", "draw_e_histogram", "draw_e_cdf", "draw_a_e",
-           "draw_branching", "draw_instability", "draw_e_vs_mass_ratio", "save_figure"]
+__all__ = [
+    "OKABE_ITO",
+    "BRANCH_STYLE",
+    "SINGLE_COLUMN_IN",
+    "DOUBLE_COLUMN_IN",
+    "STYLE",
+    "style",
+    "new_figure",
+    "ensemble_colour",
+    "draw_e_histogram",
+    "draw_e_cdf",
+    "draw_a_e",
+    "draw_branching",
+    "draw_instability",
+    "draw_e_vs_mass_ratio",
+    "save_figure",
+]
 
 SINGLE_COLUMN_IN = 3.35
 DOUBLE_COLUMN_IN = 7.1
 
 OKABE_ITO = {
-    "black": "#000000", "orange": "#E69F00", "sky_blue": "#56B4E9", "bluish_green": "#009E73",
-    "yellow": "#F0E442", "blue": "#0072B2", "vermillion": "#D55E00", "reddish_purple": "#CC79A7",
+    "black": "#000000",
+    "orange": "#E69F00",
+    "sky_blue": "#56B4E9",
+    "bluish_green": "#009E73",
+    "yellow": "#F0E442",
+    "blue": "#0072B2",
+    "vermillion": "#D55E00",
+    "reddish_purple": "#CC79A7",
 }
 
 #: branch -> (colour, marker)
@@ -50,12 +70,27 @@ _ENSEMBLE_COLOURS = ("blue", "vermillion", "bluish_green", "orange", "reddish_pu
 _DASHES = ("-", "--", "-.", ":")
 
 STYLE = {
-    "font.size": 8, "axes.labelsize": 8, "axes.titlesize": 8, "xtick.labelsize": 7,
-    "ytick.labelsize": 7, "legend.fontsize": 6, "legend.frameon": True, "legend.framealpha": 0.85,
-    "legend.edgecolor": "none", "legend.fancybox": False, "lines.linewidth": 1.0,
-    "axes.linewidth": 0.6, "xtick.direction": "in", "ytick.direction": "in", "xtick.top": True,
-    "ytick.right": True, "pdf.fonttype": 42, "ps.fonttype": 42, "savefig.dpi": 300,
-    "font.family": "DejaVu Sans", "mathtext.default": "regular",
+    "font.size": 8,
+    "axes.labelsize": 8,
+    "axes.titlesize": 8,
+    "xtick.labelsize": 7,
+    "ytick.labelsize": 7,
+    "legend.fontsize": 6,
+    "legend.frameon": True,
+    "legend.framealpha": 0.85,
+    "legend.edgecolor": "none",
+    "legend.fancybox": False,
+    "lines.linewidth": 1.0,
+    "axes.linewidth": 0.6,
+    "xtick.direction": "in",
+    "ytick.direction": "in",
+    "xtick.top": True,
+    "ytick.right": True,
+    "pdf.fonttype": 42,
+    "ps.fonttype": 42,
+    "savefig.dpi": 300,
+    "font.family": "DejaVu Sans",
+    "mathtext.default": "regular",
 }
 
 
@@ -101,9 +136,17 @@ def draw_e_histogram(ax, hist: Table, *, title: str = "", target_e: float | None
             bottom = np.zeros(len(rows))
         counts = rows["count"].astype(float)
         if counts.sum() > 0:
-            ax.bar(rows["e_low"], counts, width=rows["e_high"] - rows["e_low"], bottom=bottom,
-                   align="edge", color=BRANCH_STYLE[b][0], edgecolor="white", linewidth=0.3,
-                   label=BRANCH_LABELS[b])
+            ax.bar(
+                rows["e_low"],
+                counts,
+                width=rows["e_high"] - rows["e_low"],
+                bottom=bottom,
+                align="edge",
+                color=BRANCH_STYLE[b][0],
+                edgecolor="white",
+                linewidth=0.3,
+                label=BRANCH_LABELS[b],
+            )
         bottom = bottom + counts
     if target_e is not None:
         ax.axvline(target_e, color=OKABE_ITO["black"], ls="--", lw=0.8, label="target e")
@@ -134,14 +177,18 @@ def draw_e_cdf(ax, cdf: Table, stats: Table | None = None, *, target_e: float | 
         text = f"{s} (n={len(rows)})"
         if stats is not None and s in stats["sample"]:
             r = stats.where(sample=s)
-            text += (f"\nKS D={r['ks_d'][0]:.3f}, {_p(r['ks_p'][0])}; AD T={r['ad_t'][0]:.2f}, "
-                     f"{_p(r['ad_p'][0], int(r['ad_permutations'][0]))}")
-        ax.step(rows["e"], rows["cdf"], where="post", color=ensemble_colour(i),
-                ls=_DASHES[i % len(_DASHES)], label=text)
+            text += (
+                f"\nKS D={r['ks_d'][0]:.3f}, {_p(r['ks_p'][0])}; AD T={r['ad_t'][0]:.2f}, "
+                f"{_p(r['ad_p'][0], int(r['ad_permutations'][0]))}"
+            )
+        ax.step(
+            rows["e"], rows["cdf"], where="post", color=ensemble_colour(i), ls=_DASHES[i % len(_DASHES)], label=text
+        )
     if "observed" in labels:
         rows = cdf.where(sample="observed")
-        ax.step(rows["e"], rows["cdf"], where="post", color=OKABE_ITO["black"], lw=1.3,
-                label=f"observed (n={len(rows)})")
+        ax.step(
+            rows["e"], rows["cdf"], where="post", color=OKABE_ITO["black"], lw=1.3, label=f"observed (n={len(rows)})"
+        )
     if target_e is not None:
         ax.axvline(target_e, color="0.5", ls=":", lw=0.8, label="target e")
     ax.set_xlim(0.0, 1.0)
@@ -156,19 +203,39 @@ def draw_a_e(ax, points: Table, lines: Table, *, target: Table | None = None, ti
     for q in dict.fromkeys(lines["q_au"].tolist()):
         rows = lines.where(q_au=q)
         ax.plot(rows["a_au"], rows["e"], color="0.6", lw=0.6, ls="--", zorder=1)
-        if rows["a_au"][0] <= 2 * q <= rows["a_au"][-1]:      # label where the line crosses e = 0.5
-            ax.annotate(f"q={q:g} AU", (2 * q, 0.5), fontsize=5, color="0.35", rotation=60,
-                        ha="right", va="center")
+        if rows["a_au"][0] <= 2 * q <= rows["a_au"][-1]:  # label where the line crosses e = 0.5
+            ax.annotate(f"q={q:g} AU", (2 * q, 0.5), fontsize=5, color="0.35", rotation=60, ha="right", va="center")
     for b in BRANCHES:
         rows = points.where(branch=b)
         if len(rows):
             colour, marker = BRANCH_STYLE[b]
-            ax.scatter(rows["a_au"], rows["e"], s=5, marker=marker, color=colour, lw=0, alpha=0.8,
-                       label=BRANCH_LABELS[b], zorder=2)
+            ax.scatter(
+                rows["a_au"],
+                rows["e"],
+                s=5,
+                marker=marker,
+                color=colour,
+                lw=0,
+                alpha=0.8,
+                label=BRANCH_LABELS[b],
+                zorder=2,
+            )
     if target is not None and len(target):
-        ax.errorbar(target["a_au"], target["e"], xerr=target["a_err_au"], yerr=target["e_err"], fmt="*",
-                    ms=8, color=OKABE_ITO["black"], mfc=OKABE_ITO["yellow"], mew=0.6, lw=0.8, capsize=1.5,
-                    label=str(target["name"][0]), zorder=3)
+        ax.errorbar(
+            target["a_au"],
+            target["e"],
+            xerr=target["a_err_au"],
+            yerr=target["e_err"],
+            fmt="*",
+            ms=8,
+            color=OKABE_ITO["black"],
+            mfc=OKABE_ITO["yellow"],
+            mew=0.6,
+            lw=0.8,
+            capsize=1.5,
+            label=str(target["name"][0]),
+            zorder=3,
+        )
     ax.set_xscale("log")
     ax.set_ylim(0.0, 1.0)
     ax.set_xlabel("final semi-major axis a [AU]")
@@ -187,8 +254,15 @@ def draw_branching(ax, table: Table) -> None:
         rows = table.where(ensemble=ens)
         x = x0 + (i - (len(ensembles) - 1) / 2) * width
         err = np.vstack([rows["fraction"] - rows["low"], rows["high"] - rows["fraction"]])
-        ax.bar(x, rows["fraction"], width=width, color=ensemble_colour(i), yerr=err,
-               error_kw={"lw": 0.7, "capsize": 1.5}, label=f"{ens} (N={int(rows['n'][0])})")
+        ax.bar(
+            x,
+            rows["fraction"],
+            width=width,
+            color=ensemble_colour(i),
+            yerr=err,
+            error_kw={"lw": 0.7, "capsize": 1.5},
+            label=f"{ens} (N={int(rows['n'][0])})",
+        )
     ax.set_xticks(x0, [BRANCH_LABELS[b].replace(" ", "\n", 1) for b in BRANCHES], fontsize=6)
     ax.set_ylabel("fraction of systems")
     ax.set_ylim(0.0, 1.0)
@@ -199,8 +273,14 @@ def draw_instability(ax, table: Table) -> None:
     """CDF of the time of the first close encounter (log time), one line per ensemble."""
     for i, ens in enumerate(dict.fromkeys(table["ensemble"].tolist())):
         rows = table.where(ensemble=ens)
-        ax.step(rows["t_yr"], rows["cdf"], where="post", color=ensemble_colour(i),
-                ls=_DASHES[i % len(_DASHES)], label=f"{ens} (N={int(rows['n_systems'][0])})")
+        ax.step(
+            rows["t_yr"],
+            rows["cdf"],
+            where="post",
+            color=ensemble_colour(i),
+            ls=_DASHES[i % len(_DASHES)],
+            label=f"{ens} (N={int(rows['n_systems'][0])})",
+        )
     ax.set_xscale("log")
     ax.set_ylim(0.0, 1.0)
     ax.set_xlabel("time of first close encounter [yr]")
@@ -214,13 +294,22 @@ def draw_e_vs_mass_ratio(ax, points: Table, medians: Table | None = None, *, tit
         rows = points.where(branch=b)
         if len(rows):
             colour, marker = BRANCH_STYLE[b]
-            ax.scatter(rows["mass_ratio"], rows["e"], s=5, marker=marker, color=colour, lw=0, alpha=0.7,
-                       label=BRANCH_LABELS[b])
+            ax.scatter(
+                rows["mass_ratio"], rows["e"], s=5, marker=marker, color=colour, lw=0, alpha=0.7, label=BRANCH_LABELS[b]
+            )
     if medians is not None and len(medians):
         mid = 0.5 * (medians["x_low"] + medians["x_high"])
-        ax.errorbar(mid, medians["median"], yerr=[medians["median"] - medians["p16"],
-                                                   medians["p84"] - medians["median"]],
-                    fmt="o-", color=OKABE_ITO["black"], ms=3, lw=0.9, capsize=1.5, label="median, 16-84 %")
+        ax.errorbar(
+            mid,
+            medians["median"],
+            yerr=[medians["median"] - medians["p16"], medians["p84"] - medians["median"]],
+            fmt="o-",
+            color=OKABE_ITO["black"],
+            ms=3,
+            lw=0.9,
+            capsize=1.5,
+            label="median, 16-84 %",
+        )
     ax.set_xlim(0.0, 1.02)
     ax.set_ylim(0.0, 1.0)
     ax.set_xlabel(r"initial mass ratio $m_\mathrm{min}/m_\mathrm{max}$")

@@ -20,17 +20,30 @@ from pathlib import Path
 import numpy as np
 import xarray as xr
 
-from scatter_pop.target.branches import BRANCHES, branching_ratios, planet_branch
-from scatter_pop.target.architecture import mass_ratio
 from scatter_pop.store.schema import ENERGY_TOLERANCE_DEFAULT, quality_mask, survivor_mask
+from scatter_pop.target.architecture import mass_ratio
+from scatter_pop.target.branches import BRANCHES, branching_ratios, planet_branch
 
-__all__ = ["Table", "E_BINS", "PERICENTRE_LINES_AU", "bound_survivors", "e_histogram_by_branch",
-           "ecdf", "e_cdf_table", "comparison_stats_table", "a_e_points", "pericentre_lines",
-           "target_table", "branching_table", "instability_cdf", "e_vs_mass_ratio",
-           "binned_median"]
+__all__ = [
+    "Table",
+    "E_BINS",
+    "PERICENTRE_LINES_AU",
+    "bound_survivors",
+    "e_histogram_by_branch",
+    "ecdf",
+    "e_cdf_table",
+    "comparison_stats_table",
+    "a_e_points",
+    "pericentre_lines",
+    "target_table",
+    "branching_table",
+    "instability_cdf",
+    "e_vs_mass_ratio",
+    "binned_median",
+]
 
-E_BINS = np.linspace(0.0, 1.0, 21)                  # final-e histogram bins (width 0.05)
-PERICENTRE_LINES_AU = (0.05, 0.1, 0.5, 1.0, 2.0)    # lines of constant q = a(1 - e) [AU]
+E_BINS = np.linspace(0.0, 1.0, 21)  # final-e histogram bins (width 0.05)
+PERICENTRE_LINES_AU = (0.05, 0.1, 0.5, 1.0, 2.0)  # lines of constant q = a(1 - e) [AU]
 
 
 @dataclass
@@ -51,7 +64,7 @@ class Table:
     def __len__(self) -> int:
         return len(next(iter(self.columns.values()))) if self.columns else 0
 
-    def where(self, **equal) -> "Table":
+    def where(self, **equal) -> Table:
         """Rows whose columns equal the given values, e.g. ``t.where(ensemble="A")``."""
         keep = np.ones(len(self), dtype=bool)
         for name, value in equal.items():
@@ -65,8 +78,14 @@ class Table:
             w = csv.writer(fh)
             w.writerow(list(self.columns))
             for row in zip(*self.columns.values()):
-                w.writerow([repr(float(x)) if isinstance(x, (float, np.floating)) else
-                            (int(x) if isinstance(x, (np.integer, np.bool_)) else x) for x in row])
+                w.writerow(
+                    [
+                        repr(float(x))
+                        if isinstance(x, (float, np.floating))
+                        else (int(x) if isinstance(x, (np.integer, np.bool_)) else x)
+                        for x in row
+                    ]
+                )
 
 
 def _table(**columns) -> Table:
@@ -80,11 +99,13 @@ def _concat(tables: list[Table]) -> Table:
     return Table({k: np.concatenate([t.columns[k] for t in tables]) for k in tables[0].columns})
 
 
-def bound_survivors(ds: xr.Dataset, *, energy_tolerance: float = ENERGY_TOLERANCE_DEFAULT,
-                    include_capped: bool = False) -> np.ndarray:
+def bound_survivors(
+    ds: xr.Dataset, *, energy_tolerance: float = ENERGY_TOLERANCE_DEFAULT, include_capped: bool = False
+) -> np.ndarray:
     """Mask (system × planet) of bound survivors of the systems used."""
-    keep = np.asarray(survivor_mask(ds, energy_tolerance=energy_tolerance,
-                                    include_capped=include_capped).values, dtype=bool)
+    keep = np.asarray(
+        survivor_mask(ds, energy_tolerance=energy_tolerance, include_capped=include_capped).values, dtype=bool
+    )
     a, e = ds["a_final"].values, ds["e_final"].values
     with np.errstate(invalid="ignore"):
         return keep & (a > 0) & (e >= 0) & (e < 1)
@@ -114,8 +135,15 @@ def e_histogram_by_branch(runs, *, bins=E_BINS, **quality) -> Table:
         e, branch = ds["e_final"].values[keep], planet_branch(ds)[keep]
         for b in BRANCHES:
             counts, _ = np.histogram(e[branch == b], bins=bins)
-            out.append(_table(ensemble=[label] * counts.size, branch=[b] * counts.size,
-                              e_low=bins[:-1], e_high=bins[1:], count=counts))
+            out.append(
+                _table(
+                    ensemble=[label] * counts.size,
+                    branch=[b] * counts.size,
+                    e_low=bins[:-1],
+                    e_high=bins[1:],
+                    count=counts,
+                )
+            )
     return _concat(out)
 
 
@@ -162,10 +190,16 @@ def comparison_stats_table(rows) -> Table:
         ``ad_permutations``.
     """
     rows = list(rows)
-    return _table(sample=[r[0] for r in rows], n_sim=[r[1].n_x for r in rows],
-                  n_obs=[r[1].n_y for r in rows], ks_d=[r[1].ks_statistic for r in rows],
-                  ks_p=[r[1].ks_pvalue for r in rows], ad_t=[r[1].ad_statistic for r in rows],
-                  ad_p=[r[1].ad_pvalue for r in rows], ad_permutations=[r[1].permutations for r in rows])
+    return _table(
+        sample=[r[0] for r in rows],
+        n_sim=[r[1].n_x for r in rows],
+        n_obs=[r[1].n_y for r in rows],
+        ks_d=[r[1].ks_statistic for r in rows],
+        ks_p=[r[1].ks_pvalue for r in rows],
+        ad_t=[r[1].ad_statistic for r in rows],
+        ad_p=[r[1].ad_pvalue for r in rows],
+        ad_permutations=[r[1].permutations for r in rows],
+    )
 
 
 def a_e_points(runs, **quality) -> Table:
@@ -174,8 +208,7 @@ def a_e_points(runs, **quality) -> Table:
     for label, ds in runs:
         keep = bound_survivors(ds, **quality)
         a, e = ds["a_final"].values[keep], ds["e_final"].values[keep]
-        out.append(_table(ensemble=[label] * a.size, branch=planet_branch(ds)[keep], a_au=a, e=e,
-                          q_au=a * (1.0 - e)))
+        out.append(_table(ensemble=[label] * a.size, branch=planet_branch(ds)[keep], a_au=a, e=e, q_au=a * (1.0 - e)))
     return _concat(out)
 
 
@@ -197,8 +230,7 @@ def pericentre_lines(a_min: float, a_max: float, q_values=PERICENTRE_LINES_AU, n
 
 def target_table(target) -> Table:
     """The target with its 1σ errors: ``name``, ``a_au``, ``a_err_au``, ``e``, ``e_err``."""
-    return _table(name=[target.name], a_au=[target.a], a_err_au=[target.a_err], e=[target.e],
-                  e_err=[target.e_err])
+    return _table(name=[target.name], a_au=[target.a], a_err_au=[target.a_err], e=[target.e], e_err=[target.e_err])
 
 
 def branching_table(runs, *, confidence: float = 0.95, method: str = "exact", **quality) -> Table:
@@ -212,10 +244,17 @@ def branching_table(runs, *, confidence: float = 0.95, method: str = "exact", **
     out = []
     for label, ds in runs:
         rows = branching_ratios(ds, mask=quality_mask(ds, **quality), confidence=confidence, method=method)
-        out.append(_table(ensemble=[label] * len(rows), branch=[r.branch for r in rows],
-                          k=[r.proportion.k for r in rows], n=[r.proportion.n for r in rows],
-                          fraction=[r.proportion.fraction for r in rows],
-                          low=[r.proportion.low for r in rows], high=[r.proportion.high for r in rows]))
+        out.append(
+            _table(
+                ensemble=[label] * len(rows),
+                branch=[r.branch for r in rows],
+                k=[r.proportion.k for r in rows],
+                n=[r.proportion.n for r in rows],
+                fraction=[r.proportion.fraction for r in rows],
+                low=[r.proportion.low for r in rows],
+                high=[r.proportion.high for r in rows],
+            )
+        )
     return _concat(out)
 
 
@@ -236,8 +275,14 @@ def instability_cdf(runs, **quality) -> Table:
         t = ds["t_first_encounter"].values[use].astype(float)
         n = int(use.sum())
         x = np.sort(t[np.isfinite(t)])
-        out.append(_table(ensemble=[label] * x.size, t_yr=x, cdf=np.arange(1, x.size + 1) / max(n, 1),
-                          n_systems=np.full(x.size, n)))
+        out.append(
+            _table(
+                ensemble=[label] * x.size,
+                t_yr=x,
+                cdf=np.arange(1, x.size + 1) / max(n, 1),
+                n_systems=np.full(x.size, n),
+            )
+        )
     return _concat(out)
 
 
@@ -253,13 +298,15 @@ def e_vs_mass_ratio(runs, **quality) -> Table:
     for label, ds in runs:
         keep = bound_survivors(ds, **quality)
         q = np.repeat(mass_ratio(ds)[:, None], ds.sizes["planet"], axis=1)[keep]
-        out.append(_table(ensemble=[label] * q.size, branch=planet_branch(ds)[keep], mass_ratio=q,
-                          e=ds["e_final"].values[keep]))
+        out.append(
+            _table(
+                ensemble=[label] * q.size, branch=planet_branch(ds)[keep], mass_ratio=q, e=ds["e_final"].values[keep]
+            )
+        )
     return _concat(out)
 
 
-def binned_median(points: Table, x: str, y: str, edges, *, group: str = "ensemble",
-                  min_count: int = 5) -> Table:
+def binned_median(points: Table, x: str, y: str, edges, *, group: str = "ensemble", min_count: int = 5) -> Table:
     """Median of ``y`` in bins of ``x`` per group (bins with fewer than ``min_count`` points dropped).
 
     Returns
@@ -272,7 +319,7 @@ def binned_median(points: Table, x: str, y: str, edges, *, group: str = "ensembl
     for g in dict.fromkeys(points[group].tolist()):
         sub = points.where(**{group: g})
         idx = np.digitize(sub[x], edges) - 1
-        idx[sub[x] == edges[-1]] = edges.size - 2          # the last bin is closed on the right
+        idx[sub[x] == edges[-1]] = edges.size - 2  # the last bin is closed on the right
         rows = []
         for i in range(edges.size - 1):
             v = sub[y][idx == i]
@@ -281,6 +328,5 @@ def binned_median(points: Table, x: str, y: str, edges, *, group: str = "ensembl
                 rows.append((edges[i], edges[i + 1], med, p16, p84, v.size))
         if rows:
             lo, hi, med, p16, p84, cnt = map(np.asarray, zip(*rows))
-            out.append(_table(**{group: [g] * lo.size}, x_low=lo, x_high=hi, median=med, p16=p16,
-                              p84=p84, count=cnt))
+            out.append(_table(**{group: [g] * lo.size}, x_low=lo, x_high=hi, median=med, p16=p16, p84=p84, count=cnt))
     return _concat(out)

@@ -23,16 +23,22 @@ from pathlib import Path
 
 import numpy as np
 
-import scatter_pop.paper.figure_data as fd
 import scatter_pop.paper.drawing as fg
+import scatter_pop.paper.figure_data as fd
 from scatter_pop.errors import InputError
-from scatter_pop.store.schema import ENERGY_TOLERANCE_DEFAULT
 from scatter_pop.paper.latex_tables import latex_table
+from scatter_pop.store.schema import ENERGY_TOLERANCE_DEFAULT
 
 __all__ = ["FIGURE_NAMES", "FORMATS", "WIDTHS", "FigureFiles", "FigureSet", "write_figure_set"]
 
-FIGURE_NAMES = ("e_histogram_by_branch", "e_cdf", "a_e_plane", "branching_ratios", "instability_times",
-                "e_vs_mass_ratio")
+FIGURE_NAMES = (
+    "e_histogram_by_branch",
+    "e_cdf",
+    "a_e_plane",
+    "branching_ratios",
+    "instability_times",
+    "e_vs_mass_ratio",
+)
 FORMATS = ("pdf", "png", "svg", "eps")
 WIDTHS = ("auto", "single", "double")
 PANEL_HEIGHT_IN = 2.4
@@ -85,15 +91,24 @@ def _per_ensemble(out, name, labels, width, formats, tables, draw) -> FigureFile
     flat = axes.ravel()
     for ax, label in zip(flat, labels):
         draw(ax, label)
-    for ax in flat[len(labels):]:
+    for ax in flat[len(labels) :]:
         ax.set_visible(False)
     return _write(out, name, fig, tables, formats)
 
 
-def write_figure_set(runs, out, *, comparison=None, target=None, formats=("pdf",), width: str = "auto",
-                     confidence: float = 0.95, method: str = "exact",
-                     energy_tolerance: float = ENERGY_TOLERANCE_DEFAULT,
-                     include_capped: bool = False) -> FigureSet:
+def write_figure_set(
+    runs,
+    out,
+    *,
+    comparison=None,
+    target=None,
+    formats=("pdf",),
+    width: str = "auto",
+    confidence: float = 0.95,
+    method: str = "exact",
+    energy_tolerance: float = ENERGY_TOLERANCE_DEFAULT,
+    include_capped: bool = False,
+) -> FigureSet:
     """Write the figure set, its CSV tables and the LaTeX table into ``out``.
 
     Parameters
@@ -132,9 +147,17 @@ def write_figure_set(runs, out, *, comparison=None, target=None, formats=("pdf",
     written = []
     with fg.style():
         hist = fd.e_histogram_by_branch(runs, **quality)
-        written.append(_per_ensemble(out, "e_histogram_by_branch", labels, width, formats, {"": hist},
-                                     lambda ax, lab: fg.draw_e_histogram(ax, hist.where(ensemble=lab),
-                                                                         title=lab, target_e=target_e)))
+        written.append(
+            _per_ensemble(
+                out,
+                "e_histogram_by_branch",
+                labels,
+                width,
+                formats,
+                {"": hist},
+                lambda ax, lab: fg.draw_e_histogram(ax, hist.where(ensemble=lab), title=lab, target_e=target_e),
+            )
+        )
 
         if comparison is not None:
             cdf = fd.e_cdf_table([(r.sample.label, r.sample.e) for r in comparison.rows], comparison.observed.e)
@@ -154,9 +177,17 @@ def write_figure_set(runs, out, *, comparison=None, target=None, formats=("pdf",
         lines = fd.pericentre_lines(max(a_lo, 1e-3), a_hi)
         ttab = fd.target_table(target) if target is not None else None
         tables = {"": points, "lines": lines, **({"target": ttab} if ttab is not None else {})}
-        written.append(_per_ensemble(out, "a_e_plane", labels, width, formats, tables,
-                                     lambda ax, lab: fg.draw_a_e(ax, points.where(ensemble=lab), lines,
-                                                                 target=ttab, title=lab)))
+        written.append(
+            _per_ensemble(
+                out,
+                "a_e_plane",
+                labels,
+                width,
+                formats,
+                tables,
+                lambda ax, lab: fg.draw_a_e(ax, points.where(ensemble=lab), lines, target=ttab, title=lab),
+            )
+        )
 
         branching = fd.branching_table(runs, confidence=confidence, method=method, **quality)
         fig, axes = fg.new_figure(_one_panel_width(width), PANEL_HEIGHT_IN)
@@ -170,11 +201,19 @@ def write_figure_set(runs, out, *, comparison=None, target=None, formats=("pdf",
 
         emr = fd.e_vs_mass_ratio(runs, **quality)
         med = fd.binned_median(emr, "mass_ratio", "e", MASS_RATIO_EDGES)
-        written.append(_per_ensemble(
-            out, "e_vs_mass_ratio", labels, width, formats, {"": emr, "medians": med},
-            lambda ax, lab: fg.draw_e_vs_mass_ratio(ax, emr.where(ensemble=lab),
-                                                    med.where(ensemble=lab) if len(med) else None,
-                                                    title=lab)))
+        written.append(
+            _per_ensemble(
+                out,
+                "e_vs_mass_ratio",
+                labels,
+                width,
+                formats,
+                {"": emr, "medians": med},
+                lambda ax, lab: fg.draw_e_vs_mass_ratio(
+                    ax, emr.where(ensemble=lab), med.where(ensemble=lab) if len(med) else None, title=lab
+                ),
+            )
+        )
     latex = out / "outcomes_table.tex"
     latex.write_text(latex_table(branching, stats, confidence=confidence), encoding="utf-8")
     return FigureSet(tuple(written), latex, out / "branching_ratios.csv")

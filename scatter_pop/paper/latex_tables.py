@@ -12,13 +12,23 @@ from __future__ import annotations
 
 import math
 
-from scatter_pop.target.branches import BRANCH_LABELS, BRANCHES
 from scatter_pop.paper.figure_data import Table
+from scatter_pop.target.branches import BRANCH_LABELS, BRANCHES
 
 __all__ = ["latex_escape", "latex_percent", "latex_pvalue", "latex_table"]
 
-_ESCAPES = {"\\": r"\textbackslash{}", "&": r"\&", "%": r"\%", "$": r"\$", "#": r"\#", "_": r"\_",
-            "{": r"\{", "}": r"\}", "~": r"\textasciitilde{}", "^": r"\textasciicircum{}"}
+_ESCAPES = {
+    "\\": r"\textbackslash{}",
+    "&": r"\&",
+    "%": r"\%",
+    "$": r"\$",
+    "#": r"\#",
+    "_": r"\_",
+    "{": r"\{",
+    "}": r"\}",
+    "~": r"\textasciitilde{}",
+    "^": r"\textasciicircum{}",
+}
 
 
 def latex_escape(text: str) -> str:
@@ -52,8 +62,14 @@ def latex_pvalue(p: float, permutations: int = 0) -> str:
     return f"${_sci(p)}$"
 
 
-def latex_table(branching: Table, stats: Table | None = None, *, confidence: float = 0.95,
-                caption: str | None = None, label: str = "tab:outcomes") -> str:
+def latex_table(
+    branching: Table,
+    stats: Table | None = None,
+    *,
+    confidence: float = 0.95,
+    caption: str | None = None,
+    label: str = "tab:outcomes",
+) -> str:
     """A ``table*`` with one row per ensemble: N, branch percentages, KS and AD results.
 
     Parameters
@@ -76,32 +92,47 @@ def latex_table(branching: Table, stats: Table | None = None, *, confidence: flo
     head = ["Ensemble", "$N$"] + [latex_escape(BRANCH_LABELS[b].capitalize()) for b in BRANCHES]
     units = ["", ""] + [r"(\%)"] * len(BRANCHES)
     if with_stats:
-        head += [r"$n_\mathrm{sim}$", r"$D_\mathrm{KS}$", r"$p_\mathrm{KS}$", r"$T_\mathrm{AD}$",
-                 r"$p_\mathrm{AD}$"]
+        head += [r"$n_\mathrm{sim}$", r"$D_\mathrm{KS}$", r"$p_\mathrm{KS}$", r"$T_\mathrm{AD}$", r"$p_\mathrm{AD}$"]
         units += [""] * 5
     if caption is None:
-        caption = (f"Outcome branches: percentage of systems whose lost planets were of each kind, with "
-                   f"{100 * confidence:g} % Clopper-Pearson intervals; N systems used (failed, capped and "
-                   f"energy-flagged systems left out).")
+        caption = (
+            f"Outcome branches: percentage of systems whose lost planets were of each kind, with "
+            f"{100 * confidence:g} % Clopper-Pearson intervals; N systems used (failed, capped and "
+            f"energy-flagged systems left out)."
+        )
         if with_stats:
             n_obs = int(stats["n_obs"][0])
-            caption += (f" Survivors' eccentricities against the {n_obs} observed ones: two-sample "
-                        f"Kolmogorov-Smirnov distance and p-value, standardised k-sample Anderson-Darling "
-                        f"statistic (Scholz & Stephens 1987) with its permutation p-value.")
-    lines = [r"\begin{table*}", r"\centering", rf"\caption{{{latex_escape(caption)}}}",
-             rf"\label{{{label}}}", rf"\begin{{tabular}}{{{cols}}}", r"\toprule",
-             " & ".join(head) + r" \\", " & ".join(units) + r" \\", r"\midrule"]
+            caption += (
+                f" Survivors' eccentricities against the {n_obs} observed ones: two-sample "
+                f"Kolmogorov-Smirnov distance and p-value, standardised k-sample Anderson-Darling "
+                f"statistic (Scholz & Stephens 1987) with its permutation p-value."
+            )
+    lines = [
+        r"\begin{table*}",
+        r"\centering",
+        rf"\caption{{{latex_escape(caption)}}}",
+        rf"\label{{{label}}}",
+        rf"\begin{{tabular}}{{{cols}}}",
+        r"\toprule",
+        " & ".join(head) + r" \\",
+        " & ".join(units) + r" \\",
+        r"\midrule",
+    ]
     for ens in ensembles:
         rows = branching.where(ensemble=ens)
         by = {b: i for i, b in enumerate(rows["branch"].tolist())}
         cells = [latex_escape(ens), str(int(rows["n"][0]))]
-        cells += [latex_percent(rows["fraction"][by[b]], rows["low"][by[b]], rows["high"][by[b]])
-                  for b in BRANCHES]
+        cells += [latex_percent(rows["fraction"][by[b]], rows["low"][by[b]], rows["high"][by[b]]) for b in BRANCHES]
         if with_stats:
             if ens in stats["sample"]:
                 s = stats.where(sample=ens)
-                cells += [str(int(s["n_sim"][0])), f"{s['ks_d'][0]:.3f}", latex_pvalue(s["ks_p"][0]),
-                          f"{s['ad_t'][0]:.2f}", latex_pvalue(s["ad_p"][0], int(s["ad_permutations"][0]))]
+                cells += [
+                    str(int(s["n_sim"][0])),
+                    f"{s['ks_d'][0]:.3f}",
+                    latex_pvalue(s["ks_p"][0]),
+                    f"{s['ad_t'][0]:.2f}",
+                    latex_pvalue(s["ad_p"][0], int(s["ad_permutations"][0])),
+                ]
             else:
                 cells += ["--"] * 5
         lines.append(" & ".join(cells) + r" \\")

@@ -6,8 +6,30 @@ converted once to AU, yr, M_sun and radians.
 """
 
 from scatter_pop.spec.cluster_table import ClusterConfig, load_cluster_file
-from scatter_pop.spec.reader import (INTEGRATORS, Distribution, EnsembleSpec, IntegrationSpec, OutcomeSpec,
-                                     PlanetsSpec, RunSpec, StarSpec, load_spec, parse_spec)
+from scatter_pop.spec.reader import (
+    INTEGRATORS,
+    Distribution,
+    EnsembleSpec,
+    IntegrationSpec,
+    OutcomeSpec,
+    PlanetsSpec,
+    RunSpec,
+    StarSpec,
+    load_spec,
+    parse_spec,
+)
 
-__all__ = ["load_spec", "parse_spec", "EnsembleSpec", "RunSpec", "StarSpec", "PlanetsSpec", "IntegrationSpec",
-           "OutcomeSpec", "Distribution", "INTEGRATORS", "ClusterConfig", "load_cluster_file"]
+__all__ = [
+    "load_spec",
+    "parse_spec",
+    "EnsembleSpec",
+    "RunSpec",
+    "StarSpec",
+    "PlanetsSpec",
+    "IntegrationSpec",
+    "OutcomeSpec",
+    "Distribution",
+    "INTEGRATORS",
+    "ClusterConfig",
+    "load_cluster_file",
+]

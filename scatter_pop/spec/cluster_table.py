@@ -17,8 +17,18 @@ from pathlib import Path
 
 from scatter_pop.errors import InputError
 
-__all__ = ["ClusterConfig", "KINDS", "BATCH", "WalltimeWarning", "load_cluster_file",
-           "apply_overrides", "toml_repr", "walltime_seconds", "worker_lifetime", "check_walltime"]
+__all__ = [
+    "ClusterConfig",
+    "KINDS",
+    "BATCH",
+    "WalltimeWarning",
+    "load_cluster_file",
+    "apply_overrides",
+    "toml_repr",
+    "walltime_seconds",
+    "worker_lifetime",
+    "check_walltime",
+]
 
 KINDS = ("local", "slurm", "pbs", "address")
 BATCH = ("slurm", "pbs")
@@ -54,12 +64,12 @@ def worker_lifetime(walltime: float) -> tuple[float, float]:
 
 def _usable(walltime: float) -> float:
     lifetime, stagger = worker_lifetime(walltime)
-    return lifetime - stagger          # earliest retirement, s
+    return lifetime - stagger  # earliest retirement, s
 
 
 def _hms(seconds: float) -> str:
-    s = int(-(-seconds // 60) * 60)    # rounded up to a whole minute
-    return "%02d:%02d:00" % (s // 3600, s % 3600 // 60)
+    s = int(-(-seconds // 60) * 60)  # rounded up to a whole minute
+    return f"{s // 3600:02d}:{s % 3600 // 60:02d}:00"
 
 
 def check_walltime(walltime: str, longest_task_seconds: float | None) -> None:
@@ -73,19 +83,26 @@ def check_walltime(walltime: str, longest_task_seconds: float | None) -> None:
     if not longest_task_seconds or longest_task_seconds <= 0:
         return
     from scipy.optimize import brentq
+
     usable, task = _usable(walltime_seconds(walltime)), float(longest_task_seconds)
     if task <= 0.25 * usable:
         return
     advised = _hms(brentq(lambda w: _usable(w) - 4 * task, 120, 1e9))
     if task >= usable:
         least = _hms(brentq(lambda w: _usable(w) - task, 120, 1e9))
-        raise InputError(f"cluster.walltime = {toml_repr(walltime)}: too short for the longest expected "
-                         f"batch (about {task:.0f} s; workers retire {usable:.0f} s after they "
-                         f"start); allowed: at least {least}, {advised} or more advised")
-    warnings.warn(f"cluster.walltime = {toml_repr(walltime)}: workers retire after {usable:.0f} s, "
-                  f"only {usable / task:.1f} times the longest expected batch ({task:.0f} s); "
-                  f"each retirement interrupts a batch, so a walltime of {advised} or more is "
-                  "advised", WalltimeWarning, stacklevel=3)
+        raise InputError(
+            f"cluster.walltime = {toml_repr(walltime)}: too short for the longest expected "
+            f"batch (about {task:.0f} s; workers retire {usable:.0f} s after they "
+            f"start); allowed: at least {least}, {advised} or more advised"
+        )
+    warnings.warn(
+        f"cluster.walltime = {toml_repr(walltime)}: workers retire after {usable:.0f} s, "
+        f"only {usable / task:.1f} times the longest expected batch ({task:.0f} s); "
+        f"each retirement interrupts a batch, so a walltime of {advised} or more is "
+        "advised",
+        WalltimeWarning,
+        stacklevel=3,
+    )
 
 
 @dataclass(frozen=True)
@@ -148,7 +165,7 @@ class ClusterConfig:
     dashboard_port: int = 8787
 
     @classmethod
-    def from_table(cls, table: dict, where: str = "cluster") -> "ClusterConfig":
+    def from_table(cls, table: dict, where: str = "cluster") -> ClusterConfig:
         """Check a ``[cluster]`` table and resolve its defaults; errors name ``<where>.<key>``."""
         if not isinstance(table, dict):
             raise InputError(f"{where} = {toml_repr(table)}: must be a table")
@@ -162,12 +179,15 @@ class ClusterConfig:
             if key not in _KEYS:
                 close = difflib.get_close_matches(key, _KEYS, n=1)
                 hint = f" (did you mean {close[0]!r}?)" if close else ""
-                raise InputError(f"{where}.{key} = {toml_repr(value)}: unknown key{hint}; allowed keys: "
-                                 f"kind, {', '.join(_KEYS)}")
+                raise InputError(
+                    f"{where}.{key} = {toml_repr(value)}: unknown key{hint}; allowed keys: kind, {', '.join(_KEYS)}"
+                )
             check, kinds, allowed = _KEYS[key]
             if kind not in kinds:
-                raise InputError(f"{where}.{key} = {toml_repr(value)}: applies only to kind "
-                                 f"{' or '.join(kinds)}, but kind = {toml_repr(kind)}")
+                raise InputError(
+                    f"{where}.{key} = {toml_repr(value)}: applies only to kind "
+                    f"{' or '.join(kinds)}, but kind = {toml_repr(kind)}"
+                )
             ok, value = check(value)
             if not ok:
                 raise InputError(f"{where}.{key} = {toml_repr(table[key])}: allowed: {allowed}")
@@ -205,6 +225,7 @@ def _lines(v):
 
 def _memory(v):
     from dask.utils import parse_bytes
+
     try:
         return isinstance(v, str) and parse_bytes(v) >= 2**27, v
     except ValueError:
@@ -216,8 +237,9 @@ def _walltime(v):
 
 
 def _address(v):
-    ok = isinstance(v, str) and (v.endswith(".json") or re.fullmatch(
-        r"(?:[a-z]+://)?\[?[\w.\-:]+\]?:\d{1,5}", v) is not None)
+    ok = isinstance(v, str) and (
+        v.endswith(".json") or re.fullmatch(r"(?:[a-z]+://)?\[?[\w.\-:]+\]?:\d{1,5}", v) is not None
+    )
     return ok, v
 
 
@@ -225,8 +247,7 @@ _ALL = ("local", "slurm", "pbs")
 # key -> (check returning (ok, converted value), kinds it applies to, what is allowed)
 _KEYS = {
     "workers": (_int(1), ("local",), "an integer >= 1 (worker processes)"),
-    "address": (_address, ("address",),
-                'a scheduler address "tcp://host:port" or a scheduler file "*.json"'),
+    "address": (_address, ("address",), 'a scheduler address "tcp://host:port" or a scheduler file "*.json"'),
     "queue": (_text, BATCH, "a partition / queue name"),
     "account": (_text, BATCH, "an account name"),
     "cores": (_int(1), BATCH, "an integer >= 1 (cores per job)"),
@@ -251,13 +272,13 @@ def _resolve(c: ClusterConfig, where: str) -> ClusterConfig:
     if c.dashboard_port > 65535:
         raise InputError(f"{where}.dashboard_port = {c.dashboard_port}: allowed: 0 ... 65535")
     if c.kind == "address" and c.address is None:
-        raise InputError(f"{where}.address: missing; required when kind = \"address\" "
-                         '(e.g. "tcp://10.0.0.1:8786" or "scheduler.json")')
+        raise InputError(
+            f'{where}.address: missing; required when kind = "address" (e.g. "tcp://10.0.0.1:8786" or "scheduler.json")'
+        )
     if c.kind not in BATCH:
         return c
     if c.jobs is not None and (c.minimum_jobs is not None or c.maximum_jobs is not None):
-        raise InputError(f"{where}.jobs = {c.jobs}: give either jobs or minimum_jobs/maximum_jobs, "
-                         "not both")
+        raise InputError(f"{where}.jobs = {c.jobs}: give either jobs or minimum_jobs/maximum_jobs, not both")
     if c.jobs is not None or (c.minimum_jobs is None and c.maximum_jobs is None):
         n = c.jobs or 1
         c = replace(c, jobs=None, minimum_jobs=n, maximum_jobs=n)
@@ -265,8 +286,7 @@ def _resolve(c: ClusterConfig, where: str) -> ClusterConfig:
         low = c.minimum_jobs if c.minimum_jobs is not None else min(1, c.maximum_jobs)
         high = c.maximum_jobs if c.maximum_jobs is not None else max(low, 1)
         if high < low:
-            raise InputError(f"{where}.maximum_jobs = {high}: allowed: an integer >= "
-                             f"minimum_jobs ({low})")
+            raise InputError(f"{where}.maximum_jobs = {high}: allowed: an integer >= minimum_jobs ({low})")
         c = replace(c, minimum_jobs=low, maximum_jobs=high)
     if c.memory is None:
         c = replace(c, memory=f"{2 * c.cores}GiB")
@@ -283,18 +303,16 @@ def load_cluster_file(path) -> ClusterConfig:
     except tomllib.TOMLDecodeError as exc:
         raise InputError(f"{path}: not valid TOML: {exc}") from None
     if set(table) == {"cluster"} and isinstance(table["cluster"], dict):
-        table = table["cluster"]          # a file written as [cluster] ... is accepted too
+        table = table["cluster"]  # a file written as [cluster] ... is accepted too
     return ClusterConfig.from_table(table, where=f"{path.name}: cluster")
 
 
-def apply_overrides(config: ClusterConfig, workers: int | None = None,
-                    scheduler: str | None = None) -> ClusterConfig:
+def apply_overrides(config: ClusterConfig, workers: int | None = None, scheduler: str | None = None) -> ClusterConfig:
     """The config after ``--workers N`` and ``--scheduler ADDRESS`` from the command line."""
     if scheduler is not None:
         ok, _ = _address(scheduler)
         if not ok:
-            raise InputError(f"--scheduler = {toml_repr(scheduler)}: allowed: "
-                             + _KEYS["address"][2])
+            raise InputError(f"--scheduler = {toml_repr(scheduler)}: allowed: " + _KEYS["address"][2])
         return ClusterConfig(kind="address", address=scheduler)
     if workers is None:
         return config
@@ -302,8 +320,10 @@ def apply_overrides(config: ClusterConfig, workers: int | None = None,
         raise InputError(f"--workers = {toml_repr(workers)}: allowed: an integer >= 1")
     if config.kind == "local":
         return replace(config, workers=workers)
-    if config.kind in BATCH:       # N worker processes = ceil(N / cores) jobs, kept running
+    if config.kind in BATCH:  # N worker processes = ceil(N / cores) jobs, kept running
         n = -(-workers // config.cores)
         return replace(config, minimum_jobs=n, maximum_jobs=n)
-    raise InputError(f"--workers = {workers}: applies to kind local, slurm or pbs; an existing "
-                     "scheduler (kind = \"address\") has the workers it has")
+    raise InputError(
+        f"--workers = {workers}: applies to kind local, slurm or pbs; an existing "
+        'scheduler (kind = "address") has the workers it has'
+    )

@@ -17,16 +17,24 @@ from dataclasses import asdict, dataclass, field
 from pathlib import Path
 from typing import Any
 
-from scatter_pop.engine.backends import backend_names
 from scatter_pop.constants import GCM3_MSUN_AU3, MJUP_MSUN, R_JUP_AU, R_SUN_AU
+from scatter_pop.engine.backends import backend_names
 from scatter_pop.errors import InputError
 
 __all__ = [
-    "Distribution", "RunSpec", "StarSpec", "PlanetsSpec", "IntegrationSpec", "OutcomeSpec",
-    "EnsembleSpec", "load_spec", "parse_spec", "INTEGRATORS",
+    "Distribution",
+    "RunSpec",
+    "StarSpec",
+    "PlanetsSpec",
+    "IntegrationSpec",
+    "OutcomeSpec",
+    "EnsembleSpec",
+    "load_spec",
+    "parse_spec",
+    "INTEGRATORS",
 ]
 
-INTEGRATORS = backend_names()        # one module each under scatter_pop/engine/backends/
+INTEGRATORS = backend_names()  # one module each under scatter_pop/engine/backends/
 DISTRIBUTIONS = ("fixed", "uniform", "log-uniform", "power-law")
 
 
@@ -53,12 +61,12 @@ class Distribution:
             return self.low + u * (self.high - self.low)
         if self.kind == "log-uniform":
             return math.exp(math.log(self.low) + u * (math.log(self.high) - math.log(self.low)))
-        g = self.index + 1.0                      # power-law: inverse CDF
+        g = self.index + 1.0  # power-law: inverse CDF
         if abs(g) < 1e-12:
             return math.exp(math.log(self.low) + u * (math.log(self.high) - math.log(self.low)))
         return (self.low**g + u * (self.high**g - self.low**g)) ** (1.0 / g)
 
-    def scaled(self, factor: float) -> "Distribution":
+    def scaled(self, factor: float) -> Distribution:
         return Distribution(self.kind, self.low * factor, self.high * factor, self.index)
 
 
@@ -67,42 +75,42 @@ class RunSpec:
     name: str
     seed: int
     systems: int
-    batch_size: int = 0            # 0: chosen by the ensemble driver
+    batch_size: int = 0  # 0: chosen by the ensemble driver
 
 
 @dataclass(frozen=True)
 class StarSpec:
-    mass: float                    # M_sun
-    radius: float                  # AU
+    mass: float  # M_sun
+    radius: float  # AU
 
 
 @dataclass(frozen=True)
 class PlanetsSpec:
     count: int
-    masses: tuple[Distribution, ...]       # one per planet, M_sun
-    a_inner: float | None                  # AU (with spacing)
-    spacing: Distribution | None           # mutual Hill radii between neighbours
-    a_list: tuple[float, ...] | None       # AU, explicit semi-major axes
-    e_sigma: float                         # Rayleigh scale of e
-    inc_sigma: float                       # Rayleigh scale of inclination, rad
-    density: float | None                  # M_sun / AU^3
-    radius: float | None                   # AU
+    masses: tuple[Distribution, ...]  # one per planet, M_sun
+    a_inner: float | None  # AU (with spacing)
+    spacing: Distribution | None  # mutual Hill radii between neighbours
+    a_list: tuple[float, ...] | None  # AU, explicit semi-major axes
+    e_sigma: float  # Rayleigh scale of e
+    inc_sigma: float  # Rayleigh scale of inclination, rad
+    density: float | None  # M_sun / AU^3
+    radius: float | None  # AU
 
 
 @dataclass(frozen=True)
 class IntegrationSpec:
     integrator: str = "bs"
-    end_time: float | None = None          # yr
-    end_orbits: float | None = None        # initial inner orbits
-    epsilon: float = 1e-9                  # IAS15 accuracy parameter
-    bs_epsilon: float = 1e-10              # BS tolerance (integrator bs)
-    steps_per_orbit: float = 50.0          # hybrid step = current shortest period / this
-    r_crit_hill: float = 3.0               # hybrid switching radius, in Hill radii
-    ejection_distance: float = 1000.0      # AU from the star
-    wall_seconds_max: float = 7200.0       # per system
-    check_orbits: float = 100.0            # initial inner orbits between stopping checks
-    stop_when_settled: bool = True         # False: reference mode, run to the end time
-    hill_margin: float = 1.01              # Hill-stable pair needs LHS/RHS >= this (see README)
+    end_time: float | None = None  # yr
+    end_orbits: float | None = None  # initial inner orbits
+    epsilon: float = 1e-9  # IAS15 accuracy parameter
+    bs_epsilon: float = 1e-10  # BS tolerance (integrator bs)
+    steps_per_orbit: float = 50.0  # hybrid step = current shortest period / this
+    r_crit_hill: float = 3.0  # hybrid switching radius, in Hill radii
+    ejection_distance: float = 1000.0  # AU from the star
+    wall_seconds_max: float = 7200.0  # per system
+    check_orbits: float = 100.0  # initial inner orbits between stopping checks
+    stop_when_settled: bool = True  # False: reference mode, run to the end time
+    hill_margin: float = 1.01  # Hill-stable pair needs LHS/RHS >= this (see README)
 
     def end_time_years(self, inner_period: float) -> float:
         """End time in years given the initial inner period (yr)."""
@@ -111,8 +119,8 @@ class IntegrationSpec:
 
 @dataclass(frozen=True)
 class OutcomeSpec:
-    disruption_eta: float = 2.7            # disrupted if q < eta * R_p (M*/M_p)^(1/3)
-    circularisation_q: float = 0.05        # AU; survivors with q below are flagged
+    disruption_eta: float = 2.7  # disrupted if q < eta * R_p (M*/M_p)^(1/3)
+    circularisation_q: float = 0.05  # AU; survivors with q below are flagged
 
 
 @dataclass(frozen=True)
@@ -122,8 +130,8 @@ class EnsembleSpec:
     planets: PlanetsSpec
     integration: IntegrationSpec
     outcomes: OutcomeSpec
-    cluster: Any = None                    # scatter_pop.ensemble.cluster.ClusterConfig
-    text: str = field(default="", compare=False, repr=False)   # the TOML as read
+    cluster: Any = None  # scatter_pop.ensemble.cluster.ClusterConfig
+    text: str = field(default="", compare=False, repr=False)  # the TOML as read
     source: str = field(default="", compare=False)
 
     def identity(self) -> dict:
@@ -132,8 +140,13 @@ class EnsembleSpec:
         batching, the wall-clock cap and the cluster (none changes a system's result)."""
         integ = asdict(self.integration)
         integ.pop("wall_seconds_max")
-        return {"seed": self.run.seed, "star": asdict(self.star), "planets": asdict(self.planets),
-                "integration": integ, "outcomes": asdict(self.outcomes)}
+        return {
+            "seed": self.run.seed,
+            "star": asdict(self.star),
+            "planets": asdict(self.planets),
+            "integration": integ,
+            "outcomes": asdict(self.outcomes),
+        }
 
     def digest(self) -> str:
         """SHA-256 of :meth:`identity` (canonical JSON)."""
@@ -177,8 +190,9 @@ class _Section:
     def finish(self, allowed_keys) -> None:
         for key in self.table:
             if key not in allowed_keys:
-                raise InputError(f"{self.name(key)}: unknown key; allowed keys in "
-                                 f"[{self.where}]: {', '.join(sorted(allowed_keys))}")
+                raise InputError(
+                    f"{self.name(key)}: unknown key; allowed keys in [{self.where}]: {', '.join(sorted(allowed_keys))}"
+                )
 
 
 def _show(value) -> str:
@@ -212,11 +226,17 @@ def _distribution(value, key: str, *, positive=True) -> Distribution:
             raise InputError(f"{key} = {_show(value)}: must be > 0")
         return Distribution("fixed", value, value)
     if not isinstance(value, dict):
-        raise InputError(f"{key} = {_show(value)}: must be a number or a table "
-                         f"{{distribution = \"uniform\", low = ..., high = ...}}")
+        raise InputError(
+            f'{key} = {_show(value)}: must be a number or a table {{distribution = "uniform", low = ..., high = ...}}'
+        )
     sec = _Section(value, key)
-    kind = sec.get("distribution", str, required=True, check=lambda s: s in DISTRIBUTIONS,
-                   allowed="one of " + ", ".join(DISTRIBUTIONS))
+    kind = sec.get(
+        "distribution",
+        str,
+        required=True,
+        check=lambda s: s in DISTRIBUTIONS,
+        allowed="one of " + ", ".join(DISTRIBUTIONS),
+    )
     if kind == "fixed":
         v = sec.get("value", float, required=True, check=_positive, allowed="> 0")
         sec.finish({"distribution", "value"})
@@ -236,10 +256,10 @@ def _distribution(value, key: str, *, positive=True) -> Distribution:
 def _run(table) -> RunSpec:
     s = _Section(table, "run")
     name = s.get("name", str, "ensemble", check=lambda n: n.strip() != "", allowed="a non-empty string")
-    seed = s.get("seed", int, required=True, check=lambda x: 0 <= x < 2**63,
-                 allowed="an integer from 0 to 2^63-1")
-    systems = s.get("systems", int, required=True, check=lambda x: 1 <= x <= 10_000_000,
-                    allowed="an integer from 1 to 10000000")
+    seed = s.get("seed", int, required=True, check=lambda x: 0 <= x < 2**63, allowed="an integer from 0 to 2^63-1")
+    systems = s.get(
+        "systems", int, required=True, check=lambda x: 1 <= x <= 10_000_000, allowed="an integer from 1 to 10000000"
+    )
     batch = s.get("batch_size", int, 0, check=lambda x: x >= 0, allowed=">= 0 (0: automatic)")
     s.finish({"name", "seed", "systems", "batch_size"})
     return RunSpec(name, seed, systems, batch)
@@ -257,22 +277,27 @@ def _planets(table) -> PlanetsSpec:
     s = _Section(table, "planets")
     count = s.get("count", int, required=True, check=lambda n: 2 <= n <= 10, allowed="an integer from 2 to 10")
     if s.has("mass") == s.has("masses"):
-        raise InputError("planets.mass / planets.masses: give exactly one (mass: one distribution shared "
-                         "by all planets; masses: a list with one per planet), in M_J")
+        raise InputError(
+            "planets.mass / planets.masses: give exactly one (mass: one distribution shared "
+            "by all planets; masses: a list with one per planet), in M_J"
+        )
     if s.has("mass"):
         shared = _distribution(s.table["mass"], s.name("mass"))
         masses = (shared,) * count
     else:
         items = s.table["masses"]
         if not isinstance(items, list) or len(items) != count:
-            raise InputError(f"planets.masses = {_show(items)}: must be a list of {count} masses or "
-                             f"distributions (planets.count = {count})")
+            raise InputError(
+                f"planets.masses = {_show(items)}: must be a list of {count} masses or "
+                f"distributions (planets.count = {count})"
+            )
         masses = tuple(_distribution(v, f"planets.masses[{i}]") for i, v in enumerate(items))
     masses = tuple(d.scaled(MJUP_MSUN) for d in masses)
     for i, d in enumerate(masses):
         if d.high > 0.1:
-            raise InputError(f"planets.masses[{i}]: upper mass {d.high / MJUP_MSUN:g} M_J: must be <= 104 M_J "
-                             "(0.1 M_sun)")
+            raise InputError(
+                f"planets.masses[{i}]: upper mass {d.high / MJUP_MSUN:g} M_J: must be <= 104 M_J (0.1 M_sun)"
+            )
 
     a_inner = spacing = a_list = None
     if s.has("a"):
@@ -285,8 +310,9 @@ def _planets(table) -> PlanetsSpec:
         if any(x <= 0 for x in a_list) or any(b <= a for a, b in zip(a_list, a_list[1:])):
             raise InputError(f"planets.a = {_show(list(a_list))}: must be positive and increasing (AU)")
     else:
-        a_inner = s.get("a_inner", float, required=True, check=_positive,
-                        allowed="in AU, > 0 (or give planets.a as a list)")
+        a_inner = s.get(
+            "a_inner", float, required=True, check=_positive, allowed="in AU, > 0 (or give planets.a as a list)"
+        )
         if not s.has("spacing"):
             raise InputError("planets.spacing is missing: a number or a uniform range, in mutual Hill radii")
         spacing = _distribution(s.table["spacing"], s.name("spacing"))
@@ -300,8 +326,10 @@ def _planets(table) -> PlanetsSpec:
     if s.has("radius"):
         radius = s.get("radius", float, check=lambda r: 0 < r <= 10, allowed="in R_J, > 0 and <= 10") * R_JUP_AU
     else:
-        density = s.get("density", float, 1.33, check=lambda r: 0.01 <= r <= 100,
-                        allowed="in g/cm^3, from 0.01 to 100") * GCM3_MSUN_AU3
+        density = (
+            s.get("density", float, 1.33, check=lambda r: 0.01 <= r <= 100, allowed="in g/cm^3, from 0.01 to 100")
+            * GCM3_MSUN_AU3
+        )
     s.finish({"count", "mass", "masses", "a", "a_inner", "spacing", "e_sigma", "inc_sigma", "density", "radius"})
     return PlanetsSpec(count, masses, a_inner, spacing, a_list, e_sigma, math.radians(inc_deg), density, radius)
 
@@ -309,26 +337,31 @@ def _planets(table) -> PlanetsSpec:
 def _integration(table) -> IntegrationSpec:
     s = _Section(table, "integration")
     d = IntegrationSpec()
-    integrator = s.get("integrator", str, d.integrator, check=lambda x: x in INTEGRATORS,
-                       allowed="one of " + ", ".join(INTEGRATORS))
+    integrator = s.get(
+        "integrator", str, d.integrator, check=lambda x: x in INTEGRATORS, allowed="one of " + ", ".join(INTEGRATORS)
+    )
     if s.has("end_time") == s.has("end_orbits"):
-        raise InputError("integration.end_time / integration.end_orbits: give exactly one "
-                         "(end_time in yr, or end_orbits in initial inner orbits)")
+        raise InputError(
+            "integration.end_time / integration.end_orbits: give exactly one "
+            "(end_time in yr, or end_orbits in initial inner orbits)"
+        )
     end_time = s.get("end_time", float, check=_positive, allowed="in yr, > 0")
     end_orbits = s.get("end_orbits", float, check=_positive, allowed="in initial inner orbits, > 0")
     spec = IntegrationSpec(
-        integrator=integrator, end_time=end_time, end_orbits=end_orbits,
+        integrator=integrator,
+        end_time=end_time,
+        end_orbits=end_orbits,
         epsilon=s.get("epsilon", float, d.epsilon, check=lambda x: 0 < x < 1, allowed="> 0 and < 1"),
         bs_epsilon=s.get("bs_epsilon", float, d.bs_epsilon, check=lambda x: 0 < x < 1, allowed="> 0 and < 1"),
-        steps_per_orbit=s.get("steps_per_orbit", float, d.steps_per_orbit, check=lambda x: x >= 5,
-                              allowed=">= 5"),
+        steps_per_orbit=s.get("steps_per_orbit", float, d.steps_per_orbit, check=lambda x: x >= 5, allowed=">= 5"),
         r_crit_hill=s.get("r_crit_hill", float, d.r_crit_hill, check=_positive, allowed="> 0 (Hill radii)"),
-        ejection_distance=s.get("ejection_distance", float, d.ejection_distance, check=_positive,
-                                allowed="in AU, > 0"),
-        wall_seconds_max=s.get("wall_seconds_max", float, d.wall_seconds_max, check=_positive,
-                               allowed="in seconds, > 0"),
-        check_orbits=s.get("check_orbits", float, d.check_orbits, check=_positive,
-                           allowed="in initial inner orbits, > 0"),
+        ejection_distance=s.get("ejection_distance", float, d.ejection_distance, check=_positive, allowed="in AU, > 0"),
+        wall_seconds_max=s.get(
+            "wall_seconds_max", float, d.wall_seconds_max, check=_positive, allowed="in seconds, > 0"
+        ),
+        check_orbits=s.get(
+            "check_orbits", float, d.check_orbits, check=_positive, allowed="in initial inner orbits, > 0"
+        ),
         stop_when_settled=s.get("stop_when_settled", bool, d.stop_when_settled),
         hill_margin=s.get("hill_margin", float, d.hill_margin, check=lambda x: x >= 1, allowed=">= 1"),
     )
@@ -340,10 +373,12 @@ def _outcomes(table) -> OutcomeSpec:
     s = _Section(table, "outcomes", required=False)
     d = OutcomeSpec()
     spec = OutcomeSpec(
-        disruption_eta=s.get("disruption_eta", float, d.disruption_eta, check=lambda x: 0 < x <= 100,
-                             allowed="> 0 and <= 100"),
-        circularisation_q=s.get("circularisation_q", float, d.circularisation_q, check=lambda x: x >= 0,
-                                allowed="in AU, >= 0"),
+        disruption_eta=s.get(
+            "disruption_eta", float, d.disruption_eta, check=lambda x: 0 < x <= 100, allowed="> 0 and <= 100"
+        ),
+        circularisation_q=s.get(
+            "circularisation_q", float, d.circularisation_q, check=lambda x: x >= 0, allowed="in AU, >= 0"
+        ),
     )
     s.finish({"disruption_eta", "circularisation_q"})
     return spec
@@ -364,12 +399,15 @@ def parse_spec(text: str, source: str = "<spec>") -> EnsembleSpec:
     run, star, planets = _run(doc.get("run")), _star(doc.get("star")), _planets(doc.get("planets"))
     integration, outcomes = _integration(doc.get("integration")), _outcomes(doc.get("outcomes"))
     if planets.a_list is not None and planets.a_list[-1] >= integration.ejection_distance:
-        raise InputError(f"integration.ejection_distance = {integration.ejection_distance!r}: must exceed the "
-                         f"outermost initial semi-major axis ({planets.a_list[-1]!r} AU)")
+        raise InputError(
+            f"integration.ejection_distance = {integration.ejection_distance!r}: must exceed the "
+            f"outermost initial semi-major axis ({planets.a_list[-1]!r} AU)"
+        )
     cluster_table = doc.get("cluster", {})
     if not isinstance(cluster_table, dict):
         raise InputError(f"cluster = {_show(cluster_table)}: must be a table [cluster]")
-    from scatter_pop.spec.cluster_table import ClusterConfig   # the cluster table is checked by its own module
+    from scatter_pop.spec.cluster_table import ClusterConfig  # the cluster table is checked by its own module
+
     cluster = ClusterConfig.from_table(cluster_table)
     return EnsembleSpec(run, star, planets, integration, outcomes, cluster, text=text, source=source)
 

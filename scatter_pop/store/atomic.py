@@ -48,6 +48,7 @@ def atomic_write_netcdf(ds: xr.Dataset, path: Path, encoding: dict | None = None
     def write(tmp):
         with dask.config.set(scheduler="synchronous"):
             ds.to_netcdf(tmp, engine="netcdf4", format="NETCDF4", encoding=encoding)
+
     _atomic(Path(path), write)
 
 

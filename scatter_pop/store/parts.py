@@ -120,8 +120,12 @@ def stack(datasets: list[xr.Dataset]) -> xr.Dataset:
     first = datasets[0]
     system = np.concatenate([d["system"].values for d in datasets])
     order = np.argsort(system, kind="stable")
-    data_vars = {name: (var.dims, np.concatenate([d[name].values for d in datasets])[order], dict(var.attrs))
-                 for name, var in first.data_vars.items()}
-    coords = {"system": ("system", system[order], dict(first["system"].attrs)),
-              "planet": ("planet", first["planet"].values, dict(first["planet"].attrs))}
+    data_vars = {
+        name: (var.dims, np.concatenate([d[name].values for d in datasets])[order], dict(var.attrs))
+        for name, var in first.data_vars.items()
+    }
+    coords = {
+        "system": ("system", system[order], dict(first["system"].attrs)),
+        "planet": ("planet", first["planet"].values, dict(first["planet"].attrs)),
+    }
     return xr.Dataset(data_vars, coords=coords, attrs=dict(first.attrs))

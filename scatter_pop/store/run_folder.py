@@ -30,14 +30,25 @@ from pathlib import Path
 import numpy as np
 import xarray as xr
 
-from scatter_pop.store.atomic import atomic_write_netcdf, atomic_write_text
 from scatter_pop.errors import InputError
+from scatter_pop.spec.reader import EnsembleSpec, parse_spec
+from scatter_pop.store.atomic import atomic_write_netcdf, atomic_write_text
 from scatter_pop.store.parts import Part, drop_contained, load, part_name, scan, stack
 from scatter_pop.store.schema import validate_dataset
-from scatter_pop.spec.reader import EnsembleSpec, parse_spec
 
-__all__ = ["RunFolder", "Part", "prepare_folder", "atomic_write_netcdf", "atomic_write_text",
-           "open_ensemble", "read_parts", "versions", "part_name", "SPEC_FILE", "ENSEMBLE_FILE"]
+__all__ = [
+    "RunFolder",
+    "Part",
+    "prepare_folder",
+    "atomic_write_netcdf",
+    "atomic_write_text",
+    "open_ensemble",
+    "read_parts",
+    "versions",
+    "part_name",
+    "SPEC_FILE",
+    "ENSEMBLE_FILE",
+]
 
 SPEC_FILE = "spec.toml"
 STATE_FILE = "run.json"
@@ -49,7 +60,7 @@ ENSEMBLE_COMPRESSION = {"zlib": True, "complevel": 4}
 
 
 def _utc_now() -> str:
-    return _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds")
+    return _dt.datetime.now(_dt.UTC).isoformat(timespec="seconds")
 
 
 def versions() -> dict[str, str]:
@@ -59,10 +70,16 @@ def versions() -> dict[str, str]:
     import rebound
 
     from scatter_pop import __version__
-    return {"scatter_pop_version": __version__, "rebound_version": rebound.__version__,
-            "numpy_version": np.__version__, "dask_version": dask.__version__,
-            "xarray_version": xr.__version__, "netcdf4_version": netCDF4.__version__,
-            "python_version": platform.python_version()}
+
+    return {
+        "scatter_pop_version": __version__,
+        "rebound_version": rebound.__version__,
+        "numpy_version": np.__version__,
+        "dask_version": dask.__version__,
+        "xarray_version": xr.__version__,
+        "netcdf4_version": netCDF4.__version__,
+        "python_version": platform.python_version(),
+    }
 
 
 class RunFolder:
@@ -121,15 +138,17 @@ class RunFolder:
             except BlockingIOError:
                 fh.seek(0)
                 who = fh.read().strip() or "unknown"
-                raise InputError(f"--out {str(self.path)!r}: another scatter-pop run is using this folder "
-                                 f"({who}); wait for it to end or choose another --out") from None
+                raise InputError(
+                    f"--out {str(self.path)!r}: another scatter-pop run is using this folder "
+                    f"({who}); wait for it to end or choose another --out"
+                ) from None
             fh.seek(0)
             fh.truncate()
             fh.write(f"pid {os.getpid()} on {socket.gethostname()}\n")
             fh.flush()
             yield self
         finally:
-            fh.close()                      # closing releases the flock
+            fh.close()  # closing releases the flock
 
     def locked_by_other(self) -> bool:
         """True while some process holds the folder's lock (a run in progress)."""
@@ -165,13 +184,14 @@ class RunFolder:
                 continue
             self.damaged_dir.mkdir(exist_ok=True)
             os.replace(path, self.damaged_dir / f"{path.name}.{_dt.datetime.now():%Y%m%dT%H%M%S%f}")
-            reports.append(f"part {path.name}: {problem}; moved to {DAMAGED}/, systems {first}-{last} "
-                           "will be recomputed")
+            reports.append(
+                f"part {path.name}: {problem}; moved to {DAMAGED}/, systems {first}-{last} will be recomputed"
+            )
         try:
             kept, contained = drop_contained(good)
         except ValueError as exc:
             raise InputError(f"{self.parts_dir}: {exc}; remove one of them by hand") from None
-        for part in contained:                  # already held by a consolidated part
+        for part in contained:  # already held by a consolidated part
             part.path.unlink()
         return kept, reports
 
@@ -204,8 +224,9 @@ class RunFolder:
         return whole
 
     # ---- gathering
-    def gather(self, parts: list[Part], spec: EnsembleSpec, systems: int | None = None,
-               write: bool = True) -> xr.Dataset:
+    def gather(
+        self, parts: list[Part], spec: EnsembleSpec, systems: int | None = None, write: bool = True
+    ) -> xr.Dataset:
         """Concatenate parts into the ensemble dataset of systems 0..systems-1.
 
         With ``write`` the result goes to ``DIR/ensemble.nc`` (zlib level 4); it must then hold
@@ -237,7 +258,7 @@ class RunFolder:
             "run_seed": np.uint64(spec.run.seed),
             "systems": np.int64(systems),
             "integrator": spec.integration.integrator,
-            "star_mass": float(spec.star.mass),          # M_sun
+            "star_mass": float(spec.star.mass),  # M_sun
             "spec_digest": spec.digest(),
             "spec_toml": spec.text,
             **versions(),
@@ -252,16 +273,21 @@ class RunFolder:
             return False
         try:
             with xr.open_dataset(self.ensemble_path, engine="netcdf4") as ds:
-                return (int(ds.attrs.get("systems", -1)) == spec.run.systems
-                        and ds.attrs.get("spec_digest") == spec.digest())
+                return (
+                    int(ds.attrs.get("systems", -1)) == spec.run.systems
+                    and ds.attrs.get("spec_digest") == spec.digest()
+                )
         except (OSError, RuntimeError, ValueError, KeyError):
             return False
 
 
 # --------------------------------------------------------------------------- preparing and opening
 def _flat(d: dict, prefix: str = "") -> dict:
-    return {k2: v2 for k, v in d.items()
-            for k2, v2 in (_flat(v, f"{prefix}{k}.") if isinstance(v, dict) else {f"{prefix}{k}": v}).items()}
+    return {
+        k2: v2
+        for k, v in d.items()
+        for k2, v2 in (_flat(v, f"{prefix}{k}.") if isinstance(v, dict) else {f"{prefix}{k}": v}).items()
+    }
 
 
 def _identity_differences(old: EnsembleSpec, new: EnsembleSpec) -> list[str]:
@@ -271,8 +297,7 @@ def _identity_differences(old: EnsembleSpec, new: EnsembleSpec) -> list[str]:
     return [f"{'run.seed' if k == 'seed' else k} {a.get(k)!r} -> {b.get(k)!r}" for k in keys]
 
 
-def prepare_folder(spec: EnsembleSpec, out, *, fresh: bool = False, dry_run: bool = False,
-                   log=print) -> RunFolder:
+def prepare_folder(spec: EnsembleSpec, out, *, fresh: bool = False, dry_run: bool = False, log=print) -> RunFolder:
     """Check that ``out`` can hold a run of ``spec``; with ``fresh`` move an old run aside.
 
     A folder holding a run of a spec with another identity (:meth:`EnsembleSpec.digest`) is
@@ -286,26 +311,31 @@ def prepare_folder(spec: EnsembleSpec, out, *, fresh: bool = False, dry_run: boo
     if not folder.path.is_dir() or not any(p.name != LOCK_FILE for p in folder.path.iterdir()):
         return folder
     if not folder.is_run_folder():
-        raise InputError(f"--out {str(folder.path)!r}: a non-empty folder that is not a scatter-pop run "
-                         f"folder (no {SPEC_FILE}); choose another --out")
+        raise InputError(
+            f"--out {str(folder.path)!r}: a non-empty folder that is not a scatter-pop run "
+            f"folder (no {SPEC_FILE}); choose another --out"
+        )
     try:
         old = folder.stored_spec("--out")
         changed = _identity_differences(old, spec)
     except InputError:
         if not fresh:
-            raise InputError(f"--out {str(folder.path)!r}: its {SPEC_FILE} is not a valid spec; "
-                             "rerun with --fresh to move the old folder aside") from None
+            raise InputError(
+                f"--out {str(folder.path)!r}: its {SPEC_FILE} is not a valid spec; "
+                "rerun with --fresh to move the old folder aside"
+            ) from None
         changed = ["(unreadable)"]
     if changed and not fresh:
-        raise InputError(f"--out {str(folder.path)!r}: holds a run of a different spec (changed: "
-                         f"{'; '.join(changed[:3])}{'; ...' if len(changed) > 3 else ''}); only run.name, "
-                         "run.systems, run.batch_size, integration.wall_seconds_max and [cluster] may change "
-                         "in a run folder; rerun with --fresh to move the old run aside, or choose another --out")
+        raise InputError(
+            f"--out {str(folder.path)!r}: holds a run of a different spec (changed: "
+            f"{'; '.join(changed[:3])}{'; ...' if len(changed) > 3 else ''}); only run.name, "
+            "run.systems, run.batch_size, integration.wall_seconds_max and [cluster] may change "
+            "in a run folder; rerun with --fresh to move the old run aside, or choose another --out"
+        )
     if fresh:
         if folder.locked_by_other():
             raise InputError(f"--fresh: {str(folder.path)!r} is in use by a running scatter-pop run")
-        aside = folder.path.with_name(f"{folder.path.name}.replaced-"
-                                      f"{_dt.datetime.now(_dt.timezone.utc):%Y%m%dT%H%M%SZ}")
+        aside = folder.path.with_name(f"{folder.path.name}.replaced-{_dt.datetime.now(_dt.UTC):%Y%m%dT%H%M%SZ}")
         if dry_run:
             log(f"--fresh: would move {folder.path} to {aside}")
         else:
@@ -337,8 +367,10 @@ def open_ensemble(path, *, partial: bool = False) -> xr.Dataset:
     parts, _ = read_parts(folder, spec)
     done = sum(int((part.indices < spec.run.systems).sum()) for part in parts)
     if not partial or not parts:
-        raise InputError(f"{str(p)!r}: run incomplete ({done}/{spec.run.systems} systems); rerun "
-                         "`scatter-pop run` on its spec to finish it, or open it with partial=True")
+        raise InputError(
+            f"{str(p)!r}: run incomplete ({done}/{spec.run.systems} systems); rerun "
+            "`scatter-pop run` on its spec to finish it, or open it with partial=True"
+        )
     return folder.gather(parts, spec, write=False)
 
 

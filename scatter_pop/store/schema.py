@@ -23,13 +23,21 @@ import xarray as xr
 from scatter_pop.engine.outcome import EndReason, Fate, SystemRecord
 
 __all__ = [
-    "Var", "VARIABLES", "PLANET_VARIABLES", "SYSTEM_VARIABLES", "PHYSICS_VARIABLES",
-    "ENERGY_TOLERANCE_DEFAULT", "FILL_INT", "records_to_dataset", "validate_dataset",
-    "quality_mask", "survivor_mask",
+    "Var",
+    "VARIABLES",
+    "PLANET_VARIABLES",
+    "SYSTEM_VARIABLES",
+    "PHYSICS_VARIABLES",
+    "ENERGY_TOLERANCE_DEFAULT",
+    "FILL_INT",
+    "records_to_dataset",
+    "validate_dataset",
+    "quality_mask",
+    "survivor_mask",
 ]
 
-FILL_INT = -1                       # fill of int8 codes for systems with no result
-ENERGY_TOLERANCE_DEFAULT = 1e-4     # |dE/E| above this: flagged, left out of statistics
+FILL_INT = -1  # fill of int8 codes for systems with no result
+ENERGY_TOLERANCE_DEFAULT = 1e-4  # |dE/E| above this: flagged, left out of statistics
 
 
 @dataclass(frozen=True)
@@ -39,8 +47,8 @@ class Var:
     dtype: str
     units: str
     long_name: str
-    flags: type | None = None       # IntEnum whose codes the variable holds
-    physics: bool = True            # part of the bit-for-bit reproducibility promise
+    flags: type | None = None  # IntEnum whose codes the variable holds
+    physics: bool = True  # part of the bit-for-bit reproducibility promise
 
 
 P = ("system", "planet")
@@ -64,8 +72,13 @@ VARIABLES: tuple[Var, ...] = (
     Var("fate", P, "i1", "1", "fate of the planet", flags=Fate),
     Var("t_fate", P, "f8", "yr", "time of the planet's fate (NaN for survivors)"),
     Var("merged_into", P, "i1", "1", "index of the planet this one merged into (-1: none)"),
-    Var("tidal_candidate", P, "i1", "1",
-        "survivor whose pericentre is below the circularisation threshold (1) or not (0)"),
+    Var(
+        "tidal_candidate",
+        P,
+        "i1",
+        "1",
+        "survivor whose pericentre is below the circularisation threshold (1) or not (0)",
+    ),
     # per system
     Var("seed", S, "u8", "1", "64-bit seed of the system's initial-condition draws"),
     Var("n_survivors", S, "i1", "1", "number of surviving planets"),
@@ -111,31 +124,39 @@ def records_to_dataset(records: list[SystemRecord], n_planets: int) -> xr.Datase
     """
     records = sorted(records, key=lambda r: r.index)
     ns = len(records)
-    data = {v.name: np.full(((ns, n_planets) if v.dims == P else ns), _fill(v.dtype), dtype=v.dtype)
-            for v in VARIABLES}
+    data = {v.name: np.full(((ns, n_planets) if v.dims == P else ns), _fill(v.dtype), dtype=v.dtype) for v in VARIABLES}
     for i, r in enumerate(records):
         for j, p in enumerate(r.planets):
             for name in PLANET_VARIABLES:
                 value = getattr(p, name)
                 data[name][i, j] = int(value) if VAR[name].dtype == "i1" else value
         failed = r.end_reason == EndReason.FAILED
-        if failed:                      # no outcome: fates unknown, not "survived"
+        if failed:  # no outcome: fates unknown, not "survived"
             data["fate"][i, :] = FILL_INT
         data["seed"][i] = r.seed
         data["end_reason"][i] = int(r.end_reason)
-        for name, fates in (("n_survivors", (Fate.SURVIVED,)), ("n_ejected", (Fate.EJECTED,)),
-                            ("n_merged", (Fate.MERGED,)), ("n_star", (Fate.HIT_STAR, Fate.DISRUPTED))):
+        for name, fates in (
+            ("n_survivors", (Fate.SURVIVED,)),
+            ("n_ejected", (Fate.EJECTED,)),
+            ("n_merged", (Fate.MERGED,)),
+            ("n_star", (Fate.HIT_STAR, Fate.DISRUPTED)),
+        ):
             data[name][i] = FILL_INT if failed else sum(r.count(f) for f in fates)
-        for name in ("t_first_encounter", "t_end", "energy_error", "angmom_error", "steps",
-                     "wall_seconds", "attempts"):
+        for name in ("t_first_encounter", "t_end", "energy_error", "angmom_error", "steps", "wall_seconds", "attempts"):
             data[name][i] = getattr(r, name)
     ds = xr.Dataset(
         {v.name: (v.dims, data[v.name], _attrs(v)) for v in VARIABLES},
         coords={
-            "system": ("system", np.array([r.index for r in records], dtype="i8"),
-                       {"long_name": "system index within the run", "units": "1"}),
-            "planet": ("planet", np.arange(n_planets, dtype="i1"),
-                       {"long_name": "planet index, innermost first at the start", "units": "1"}),
+            "system": (
+                "system",
+                np.array([r.index for r in records], dtype="i8"),
+                {"long_name": "system index within the run", "units": "1"},
+            ),
+            "planet": (
+                "planet",
+                np.arange(n_planets, dtype="i1"),
+                {"long_name": "planet index, innermost first at the start", "units": "1"},
+            ),
         },
     )
     ds.attrs["Conventions"] = "CF-1.10"
@@ -153,8 +174,9 @@ def validate_dataset(ds: xr.Dataset) -> None:
             raise ValueError(f"variable {v.name!r} has units {ds[v.name].attrs.get('units')!r}, expected {v.units!r}")
 
 
-def quality_mask(ds: xr.Dataset, energy_tolerance: float = ENERGY_TOLERANCE_DEFAULT,
-                 include_capped: bool = False) -> xr.DataArray:
+def quality_mask(
+    ds: xr.Dataset, energy_tolerance: float = ENERGY_TOLERANCE_DEFAULT, include_capped: bool = False
+) -> xr.DataArray:
     """Systems that enter the statistics by default (boolean over ``system``).
 
     Left out: failed systems, systems whose corrected |dE/E| exceeds

@@ -12,5 +12,13 @@ from scatter_pop.survey.comparison import CompareOptions, ComparisonReport, comp
 from scatter_pop.survey.forward_model import RVSurvey
 from scatter_pop.survey.statistics import one_sample, two_sample
 
-__all__ = ["load_catalogue", "ObservedSample", "compare", "CompareOptions", "ComparisonReport", "RVSurvey",
-           "two_sample", "one_sample"]
+__all__ = [
+    "load_catalogue",
+    "ObservedSample",
+    "compare",
+    "CompareOptions",
+    "ComparisonReport",
+    "RVSurvey",
+    "two_sample",
+    "one_sample",
+]

@@ -30,15 +30,22 @@ from pathlib import Path
 import numpy as np
 
 from scatter_pop.constants import DAY_S, MJUP_MSUN, YEAR_S
-from scatter_pop.survey.cuts import CutLog, SampleCuts
 from scatter_pop.errors import InputError
+from scatter_pop.survey.cuts import CutLog, SampleCuts
 from scatter_pop.survey.radial_velocity import orbital_period
 
 __all__ = ["ColumnMap", "ObservedSample", "load_catalogue", "CATALOGUE_UNITS"]
 
 #: quantity -> unit expected in the CSV
-CATALOGUE_UNITS = {"e": "1", "e_err_lo": "1", "e_err_hi": "1", "a": "AU", "period": "d",
-                   "mass": "M_J", "m_star": "M_sun"}
+CATALOGUE_UNITS = {
+    "e": "1",
+    "e_err_lo": "1",
+    "e_err_hi": "1",
+    "a": "AU",
+    "period": "d",
+    "mass": "M_J",
+    "m_star": "M_sun",
+}
 
 
 @dataclass(frozen=True)
@@ -57,7 +64,7 @@ class ColumnMap:
     m_star: str = "mstar_msun"
 
     @classmethod
-    def parse(cls, text: str, flag: str = "--columns") -> tuple["ColumnMap", frozenset[str]]:
+    def parse(cls, text: str, flag: str = "--columns") -> tuple[ColumnMap, frozenset[str]]:
         """Read ``quantity=column,...``; return the map and the quantities given explicitly."""
         known = {f.name for f in fields(cls)}
         mapping = {}
@@ -126,7 +133,7 @@ class ObservedSample:
         return int(np.count_nonzero((np.nan_to_num(self.e_err_lo) + np.nan_to_num(self.e_err_hi)) > 0))
 
 
-_MISSING = {"nan", "na", "n/a", "null", "none"}     # spellings of a missing value
+_MISSING = {"nan", "na", "n/a", "null", "none"}  # spellings of a missing value
 
 
 def _read_rows(path: Path) -> tuple[list[str], list[dict], list[int]]:
@@ -148,8 +155,9 @@ def _read_rows(path: Path) -> tuple[list[str], list[dict], list[int]]:
     return header, rows, lines
 
 
-def _column(rows, lines, column: str, path: Path, *, lower=None, upper=None, strict_upper=False,
-            positive=False, magnitude=False) -> np.ndarray:
+def _column(
+    rows, lines, column: str, path: Path, *, lower=None, upper=None, strict_upper=False, positive=False, magnitude=False
+) -> np.ndarray:
     out = np.full(len(rows), np.nan)
     for i, (row, line) in enumerate(zip(rows, lines)):
         text = (row.get(column) or "").strip()
@@ -158,25 +166,37 @@ def _column(rows, lines, column: str, path: Path, *, lower=None, upper=None, str
         try:
             value = float(text)
         except ValueError:
-            raise InputError(f"catalogue {path.name}, column {column!r}, line {line}: {text!r} is not a "
-                             f"number (blank for a missing value)") from None
+            raise InputError(
+                f"catalogue {path.name}, column {column!r}, line {line}: {text!r} is not a "
+                f"number (blank for a missing value)"
+            ) from None
         if not np.isfinite(value):
-            raise InputError(f"catalogue {path.name}, column {column!r}, line {line}: {text!r} is not a "
-                             f"finite number (blank for a missing value)")
+            raise InputError(
+                f"catalogue {path.name}, column {column!r}, line {line}: {text!r} is not a "
+                f"finite number (blank for a missing value)"
+            )
         if magnitude:
             value = abs(value)
         if positive and value <= 0:
             raise InputError(f"catalogue {path.name}, column {column!r}, line {line}: {text} must be > 0")
         if lower is not None and (value < lower or (value >= upper if strict_upper else value > upper)):
             bracket = ")" if strict_upper else "]"
-            raise InputError(f"catalogue {path.name}, column {column!r}, line {line}: {text} is outside "
-                             f"[{lower:g}, {upper:g}{bracket}")
+            raise InputError(
+                f"catalogue {path.name}, column {column!r}, line {line}: {text} is outside "
+                f"[{lower:g}, {upper:g}{bracket}"
+            )
         out[i] = value
     return out
 
 
-def load_catalogue(path, *, columns: ColumnMap = ColumnMap(), cuts: SampleCuts = SampleCuts(),
-                   keep_zero_e: bool = False, explicit: frozenset[str] = frozenset()) -> ObservedSample:
+def load_catalogue(
+    path,
+    *,
+    columns: ColumnMap = ColumnMap(),
+    cuts: SampleCuts = SampleCuts(),
+    keep_zero_e: bool = False,
+    explicit: frozenset[str] = frozenset(),
+) -> ObservedSample:
     """Read an observed catalogue and apply the cuts.
 
     Parameters
@@ -202,14 +222,16 @@ def load_catalogue(path, *, columns: ColumnMap = ColumnMap(), cuts: SampleCuts =
     header, rows, lines = _read_rows(path)
     needed = {"e"} | set(explicit)
     needed |= {name for name in ("a", "period", "mass", "m_star") if getattr(cuts, name) is not None}
-    if cuts.a is not None and getattr(columns, "a") not in header:
+    if cuts.a is not None and columns.a not in header:
         needed -= {"a"}
-        needed |= {"period", "m_star"}          # a then comes from Kepler's third law
+        needed |= {"period", "m_star"}  # a then comes from Kepler's third law
     for quantity in sorted(needed):
         column = getattr(columns, quantity)
         if column not in header:
-            raise InputError(f"catalogue {path.name}: column {column!r} ({quantity}, "
-                             f"{CATALOGUE_UNITS[quantity]}) not found; columns present: {', '.join(header)}")
+            raise InputError(
+                f"catalogue {path.name}: column {column!r} ({quantity}, "
+                f"{CATALOGUE_UNITS[quantity]}) not found; columns present: {', '.join(header)}"
+            )
 
     def get(quantity, **kw):
         column = getattr(columns, quantity)
@@ -237,8 +259,12 @@ def load_catalogue(path, *, columns: ColumnMap = ColumnMap(), cuts: SampleCuts =
     if not keep_zero_e:
         keep &= e != 0.0
         log.record("e_nonzero", "e not exactly 0 (fixed circular fits left out)", int(np.count_nonzero(keep)))
-    log_units = {"a": (1.0, "AU"), "period": (YEAR_S / DAY_S, "d"), "mass": (1.0 / MJUP_MSUN, "M_J"),
-                 "m_star": (1.0, "M_sun")}
+    log_units = {
+        "a": (1.0, "AU"),
+        "period": (YEAR_S / DAY_S, "d"),
+        "mass": (1.0 / MJUP_MSUN, "M_J"),
+        "m_star": (1.0, "M_sun"),
+    }
     for name, values in (("a", a), ("period", period), ("mass", mass), ("m_star", m_star)):
         scale, unit = log_units[name]
         keep = log.apply(keep, values, getattr(cuts, name), name, scale, unit)
@@ -246,7 +272,16 @@ def load_catalogue(path, *, columns: ColumnMap = ColumnMap(), cuts: SampleCuts =
         summary = "; ".join(f"{s.label}: {s.n}" for s in log.steps)
         raise InputError(f"catalogue {path.name}: no rows left after the cuts ({summary})")
     return ObservedSample(
-        source=str(path), e=e[keep], e_err_lo=err_lo[keep], e_err_hi=err_hi[keep], a=a[keep],
-        period=period[keep], mass=mass[keep], m_star=m_star[keep],
-        line=np.asarray(lines, dtype=int)[keep], a_from_kepler=derivable[keep], log=log,
-        zeros_kept=bool(keep_zero_e))
+        source=str(path),
+        e=e[keep],
+        e_err_lo=err_lo[keep],
+        e_err_hi=err_hi[keep],
+        a=a[keep],
+        period=period[keep],
+        mass=mass[keep],
+        m_star=m_star[keep],
+        line=np.asarray(lines, dtype=int)[keep],
+        a_from_kepler=derivable[keep],
+        log=log,
+        zeros_kept=bool(keep_zero_e),
+    )

@@ -22,17 +22,22 @@ from pathlib import Path
 import numpy as np
 import xarray as xr
 
-from scatter_pop.survey.cuts import Range, SampleCuts
 from scatter_pop.errors import InputError
-from scatter_pop.survey.catalogue import ObservedSample
-from scatter_pop.survey.resampling import ResampledComparison, observed_uncertainty_spread, simulated_bootstrap_spread
 from scatter_pop.store.schema import ENERGY_TOLERANCE_DEFAULT
+from scatter_pop.survey.catalogue import ObservedSample
+from scatter_pop.survey.cuts import Range, SampleCuts
 from scatter_pop.survey.forward_model import RVSurvey, SimulatedSample, simulated_sample
-from scatter_pop.survey.statistics import (REFERENCE_DISTRIBUTIONS, OneSampleResult, TwoSampleResult, fit_beta,
-                         one_sample, two_sample)
+from scatter_pop.survey.resampling import ResampledComparison, observed_uncertainty_spread, simulated_bootstrap_spread
+from scatter_pop.survey.statistics import (
+    REFERENCE_DISTRIBUTIONS,
+    OneSampleResult,
+    TwoSampleResult,
+    fit_beta,
+    one_sample,
+    two_sample,
+)
 
-__all__ = ["CompareOptions", "SampleComparison", "ComparisonReport", "describe_e", "load_ensemble",
-           "compare"]
+__all__ = ["CompareOptions", "SampleComparison", "ComparisonReport", "describe_e", "load_ensemble", "compare"]
 
 
 @dataclass(frozen=True)
@@ -116,9 +121,14 @@ class ComparisonReport:
 def describe_e(e) -> dict:
     """Summary of an eccentricity sample: n, median, mean, fractions above 0.5 and 0.8, max."""
     e = np.asarray(e, dtype=float)
-    return {"n": int(e.size), "median": float(np.median(e)), "mean": float(np.mean(e)),
-            "frac_above_0.5": float(np.mean(e > 0.5)), "frac_above_0.8": float(np.mean(e > 0.8)),
-            "max": float(np.max(e))}
+    return {
+        "n": int(e.size),
+        "median": float(np.median(e)),
+        "mean": float(np.mean(e)),
+        "frac_above_0.5": float(np.mean(e > 0.5)),
+        "frac_above_0.8": float(np.mean(e > 0.8)),
+        "max": float(np.max(e)),
+    }
 
 
 def load_ensemble(path, *, partial: bool = False, flag: str = "DIR") -> xr.Dataset:
@@ -134,9 +144,10 @@ def load_ensemble(path, *, partial: bool = False, flag: str = "DIR") -> xr.Datas
         Name of the argument, for error messages.
     """
     from scatter_pop.store.run_folder import RunFolder, open_ensemble
+
     p = Path(path)
     if p.is_dir() and not RunFolder(p).is_run_folder():
-        p = p / "ensemble.nc"                      # a bare folder holding ensemble.nc
+        p = p / "ensemble.nc"  # a bare folder holding ensemble.nc
     if not p.exists():
         raise InputError(f"{flag} {str(path)!r}: neither a run folder nor a folder or file with ensemble.nc")
     try:
@@ -144,8 +155,9 @@ def load_ensemble(path, *, partial: bool = False, flag: str = "DIR") -> xr.Datas
     except InputError:
         raise
     except (OSError, ValueError, KeyError, RuntimeError) as exc:
-        raise InputError(f"{flag} {str(path)!r}: not a readable ensemble dataset "
-                         f"({' '.join(str(exc).split())})") from None
+        raise InputError(
+            f"{flag} {str(path)!r}: not a readable ensemble dataset ({' '.join(str(exc).split())})"
+        ) from None
 
 
 def _spawn(seq: np.random.SeedSequence, n: int) -> list[np.random.Generator]:
@@ -169,8 +181,10 @@ def compare(samples, observed: ObservedSample, options: CompareOptions = Compare
     """
     root = np.random.SeedSequence(int(options.seed))
     obs_seq, *sample_seqs = root.spawn(1 + len(samples))
-    obs_refs = tuple(one_sample(observed.e, name, samples=options.reference_samples, rng=g)
-                     for name, g in zip(options.references, _spawn(obs_seq, len(options.references))))
+    obs_refs = tuple(
+        one_sample(observed.e, name, samples=options.reference_samples, rng=g)
+        for name, g in zip(options.references, _spawn(obs_seq, len(options.references)))
+    )
     positive = observed.e[observed.e > 0]
     beta = fit_beta(positive) if positive.size >= 3 else None
     rows = []
@@ -178,26 +192,55 @@ def compare(samples, observed: ObservedSample, options: CompareOptions = Compare
         s_draw, s_test, s_unc, s_boot, s_ref = seq.spawn(5)
         g_draw, g_test, g_unc, g_boot = (np.random.default_rng(s) for s in (s_draw, s_test, s_unc, s_boot))
         sample = simulated_sample(
-            datasets, rng=g_draw, label=label, cuts=options.cuts, survey=options.survey,
-            project_sin_i=options.project_sin_i, star_mass=options.star_mass,
-            energy_tolerance=options.energy_tolerance, include_capped=options.include_capped,
-            rescale_a=options.rescale_a, tidal=options.tidal)
+            datasets,
+            rng=g_draw,
+            label=label,
+            cuts=options.cuts,
+            survey=options.survey,
+            project_sin_i=options.project_sin_i,
+            star_mass=options.star_mass,
+            energy_tolerance=options.energy_tolerance,
+            include_capped=options.include_capped,
+            rescale_a=options.rescale_a,
+            tidal=options.tidal,
+        )
         if sample.n < 2:
             steps = "; ".join(f"{s.label}: {s.n}" for s in sample.log.steps)
-            raise InputError(f"{label}: {sample.n} simulated planets left after the cuts, at least 2 "
-                             f"needed ({steps})")
+            raise InputError(f"{label}: {sample.n} simulated planets left after the cuts, at least 2 needed ({steps})")
         test = two_sample(sample.e, observed.e, permutations=options.permutations, rng=g_test)
         unc = boot = None
         if options.uncertainty_draws > 0:
-            unc = observed_uncertainty_spread(sample.e, observed.e, observed.e_err_lo, observed.e_err_hi,
-                                              draws=options.uncertainty_draws,
-                                              permutations=options.spread_permutations, rng=g_unc)
+            unc = observed_uncertainty_spread(
+                sample.e,
+                observed.e,
+                observed.e_err_lo,
+                observed.e_err_hi,
+                draws=options.uncertainty_draws,
+                permutations=options.spread_permutations,
+                rng=g_unc,
+            )
         if options.bootstrap_draws > 0:
-            boot = simulated_bootstrap_spread(sample.e, observed.e, draws=options.bootstrap_draws,
-                                              permutations=options.spread_permutations, rng=g_boot)
-        refs = tuple(one_sample(sample.e, name, samples=options.reference_samples, rng=g)
-                     for name, g in zip(options.references, _spawn(s_ref, len(options.references))))
-        rows.append(SampleComparison(sample=sample, test=test, uncertainty=unc, bootstrap=boot,
-                                     references=refs, summary=describe_e(sample.e)))
-    return ComparisonReport(observed=observed, observed_summary=describe_e(observed.e), observed_beta=beta,
-                            observed_references=obs_refs, rows=tuple(rows), options=options)
+            boot = simulated_bootstrap_spread(
+                sample.e,
+                observed.e,
+                draws=options.bootstrap_draws,
+                permutations=options.spread_permutations,
+                rng=g_boot,
+            )
+        refs = tuple(
+            one_sample(sample.e, name, samples=options.reference_samples, rng=g)
+            for name, g in zip(options.references, _spawn(s_ref, len(options.references)))
+        )
+        rows.append(
+            SampleComparison(
+                sample=sample, test=test, uncertainty=unc, bootstrap=boot, references=refs, summary=describe_e(sample.e)
+            )
+        )
+    return ComparisonReport(
+        observed=observed,
+        observed_summary=describe_e(observed.e),
+        observed_beta=beta,
+        observed_references=obs_refs,
+        rows=tuple(rows),
+        options=options,
+    )

@@ -98,8 +98,9 @@ class CutLog:
     def record(self, key: str, label: str, n: int) -> None:
         self.steps.append(Step(key, label, int(n)))
 
-    def apply(self, keep: np.ndarray, values, rng: Range | None, name: str,
-              scale: float = 1.0, unit: str = "") -> np.ndarray:
+    def apply(
+        self, keep: np.ndarray, values, rng: Range | None, name: str, scale: float = 1.0, unit: str = ""
+    ) -> np.ndarray:
         """Apply one range cut to the rows still in ``keep`` and log it.
 
         Rows whose value is unknown are dropped first, under their own step

@@ -31,20 +31,30 @@ import numpy as np
 import xarray as xr
 
 from scatter_pop.constants import DAY_S, MJUP_MSUN, YEAR_S
-from scatter_pop.survey.cuts import CutLog, Range, SampleCuts
-from scatter_pop.errors import InputError
 from scatter_pop.engine.outcome import EndReason
-from scatter_pop.survey.radial_velocity import isotropic_sin_i, orbital_period, semi_amplitude
+from scatter_pop.errors import InputError
 from scatter_pop.store.schema import ENERGY_TOLERANCE_DEFAULT, quality_mask, survivor_mask
+from scatter_pop.survey.cuts import CutLog, Range, SampleCuts
+from scatter_pop.survey.radial_velocity import isotropic_sin_i, orbital_period, semi_amplitude
 
-__all__ = ["RVSurvey", "SimulatedSample", "ensemble_star_mass", "quality_counts", "survivor_table",
-           "simulated_sample", "RESCALE_NOTE", "TIDAL_CHOICES"]
+__all__ = [
+    "RVSurvey",
+    "SimulatedSample",
+    "ensemble_star_mass",
+    "quality_counts",
+    "survivor_table",
+    "simulated_sample",
+    "RESCALE_NOTE",
+    "TIDAL_CHOICES",
+]
 
 TIDAL_CHOICES = ("keep", "drop", "circularise")
 
-RESCALE_NOTE = ("orbits rescaled in semi-major axis: point-mass dynamics is scale-free, but the "
-                "physical radii (planet-planet mergers, star collisions, tidal disruption) were "
-                "those of the original orbits, so the branching into those fates is not rescaled")
+RESCALE_NOTE = (
+    "orbits rescaled in semi-major axis: point-mass dynamics is scale-free, but the "
+    "physical radii (planet-planet mergers, star collisions, tidal disruption) were "
+    "those of the original orbits, so the branching into those fates is not rescaled"
+)
 
 
 @dataclass(frozen=True)
@@ -93,12 +103,12 @@ def ensemble_star_mass(ds: xr.Dataset, override: float | None = None, name: str 
             mass = star.get("mass") if isinstance(star, dict) else None
             if isinstance(mass, (int, float)) and not isinstance(mass, bool) and mass > 0:
                 return float(mass)
-    raise InputError(f"{name}: the stellar mass is not recorded in the dataset; give it with "
-                     "--star-mass (M_sun)")
+    raise InputError(f"{name}: the stellar mass is not recorded in the dataset; give it with --star-mass (M_sun)")
 
 
-def quality_counts(ds: xr.Dataset, *, energy_tolerance: float = ENERGY_TOLERANCE_DEFAULT,
-                   include_capped: bool = False) -> dict[str, int]:
+def quality_counts(
+    ds: xr.Dataset, *, energy_tolerance: float = ENERGY_TOLERANCE_DEFAULT, include_capped: bool = False
+) -> dict[str, int]:
     """Systems left out of the statistics, by reason (a system counts once, first reason).
 
     Returns
@@ -111,8 +121,13 @@ def quality_counts(ds: xr.Dataset, *, energy_tolerance: float = ENERGY_TOLERANCE
     kept = quality_mask(ds, energy_tolerance=energy_tolerance, include_capped=include_capped).values
     failed = reason == int(EndReason.FAILED)
     capped = ~failed & (reason == int(EndReason.CAPPED)) & (not include_capped)
-    return {"systems": int(reason.size), "failed": int(failed.sum()), "capped": int(capped.sum()),
-            "energy_error": int((~kept & ~failed & ~capped).sum()), "kept": int(kept.sum())}
+    return {
+        "systems": int(reason.size),
+        "failed": int(failed.sum()),
+        "capped": int(capped.sum()),
+        "energy_error": int((~kept & ~failed & ~capped).sum()),
+        "kept": int(kept.sum()),
+    }
 
 
 def _sky_sin_i(inc: np.ndarray, node: np.ndarray, rng) -> np.ndarray:
@@ -126,14 +141,22 @@ def _sky_sin_i(inc: np.ndarray, node: np.ndarray, rng) -> np.ndarray:
     cos_sky = np.sum(normal * los, axis=-1)
     out = np.sqrt(np.clip(1.0 - cos_sky**2, 0.0, 1.0))
     unknown = ~(np.isfinite(inc) & np.isfinite(node))
-    if unknown.any():                    # orientation not recorded: an independent isotropic draw
+    if unknown.any():  # orientation not recorded: an independent isotropic draw
         out[unknown] = isotropic_sin_i(rng, int(unknown.sum()))
     return out
 
 
-def survivor_table(ds: xr.Dataset, *, rng, project_sin_i: bool = True, star_mass: float | None = None,
-                   energy_tolerance: float = ENERGY_TOLERANCE_DEFAULT, include_capped: bool = False,
-                   rescale_a: Range | None = None, circularise_tidal: bool = False) -> dict[str, np.ndarray]:
+def survivor_table(
+    ds: xr.Dataset,
+    *,
+    rng,
+    project_sin_i: bool = True,
+    star_mass: float | None = None,
+    energy_tolerance: float = ENERGY_TOLERANCE_DEFAULT,
+    include_capped: bool = False,
+    rescale_a: Range | None = None,
+    circularise_tidal: bool = False,
+) -> dict[str, np.ndarray]:
     """Surviving, bound planets of the systems that pass the quality cuts.
 
     Parameters
@@ -175,10 +198,9 @@ def survivor_table(ds: xr.Dataset, *, rng, project_sin_i: bool = True, star_mass
     ns = ds.sizes["system"]
     scale = np.ones(ns)
     if rescale_a is not None:
-        target = np.exp(np.log(rescale_a.low) + scale_rng.random(ns)
-                        * (np.log(rescale_a.high) - np.log(rescale_a.low)))
+        target = np.exp(np.log(rescale_a.low) + scale_rng.random(ns) * (np.log(rescale_a.high) - np.log(rescale_a.low)))
         a0 = ds["a_initial"].values
-        inner = np.min(np.where(a0 > 0, a0, np.inf), axis=1)   # systems without planets: inf
+        inner = np.min(np.where(a0 > 0, a0, np.inf), axis=1)  # systems without planets: inf
         scale = np.where(np.isfinite(inner), target / inner, np.nan)
     sin_i_all = _sky_sin_i(ds["inc_final"].values, ds["node_final"].values, los_rng)
     keep = survivor_mask(ds, energy_tolerance=energy_tolerance, include_capped=include_capped).values
@@ -199,11 +221,20 @@ def survivor_table(ds: xr.Dataset, *, rng, project_sin_i: bool = True, star_mass
     period = orbital_period(a, m_star, mass)
     proj = sin_i if project_sin_i else np.ones_like(sin_i)
     return {
-        "system": ds["system"].values[si].astype(np.int64), "planet": pj.astype(np.int64),
-        "mass": mass, "sin_i": sin_i, "msini": mass * proj, "a": a, "e": e,
-        "q": q, "inc": ds["inc_final"].values[si, pj],
-        "period": np.asarray(period, dtype=float), "K": np.asarray(semi_amplitude(mass, period, e, m_star, proj)),
-        "m_star": np.full(si.size, m_star), "scale": f, "tidal": tidal,
+        "system": ds["system"].values[si].astype(np.int64),
+        "planet": pj.astype(np.int64),
+        "mass": mass,
+        "sin_i": sin_i,
+        "msini": mass * proj,
+        "a": a,
+        "e": e,
+        "q": q,
+        "inc": ds["inc_final"].values[si, pj],
+        "period": np.asarray(period, dtype=float),
+        "K": np.asarray(semi_amplitude(mass, period, e, m_star, proj)),
+        "m_star": np.full(si.size, m_star),
+        "scale": f,
+        "tidal": tidal,
     }
 
 
@@ -241,11 +272,20 @@ class SimulatedSample:
         return int(self.table["e"].size)
 
 
-def simulated_sample(datasets, *, rng, label: str = "simulated", cuts: SampleCuts = SampleCuts(),
-                     survey: RVSurvey | None = None, project_sin_i: bool = True,
-                     star_mass: float | None = None, energy_tolerance: float = ENERGY_TOLERANCE_DEFAULT,
-                     include_capped: bool = False, rescale_a: Range | None = None,
-                     tidal: str = "keep") -> SimulatedSample:
+def simulated_sample(
+    datasets,
+    *,
+    rng,
+    label: str = "simulated",
+    cuts: SampleCuts = SampleCuts(),
+    survey: RVSurvey | None = None,
+    project_sin_i: bool = True,
+    star_mass: float | None = None,
+    energy_tolerance: float = ENERGY_TOLERANCE_DEFAULT,
+    include_capped: bool = False,
+    rescale_a: Range | None = None,
+    tidal: str = "keep",
+) -> SimulatedSample:
     """Survivors of one or more ensembles, cut and seen through an RV survey.
 
     Parameters
@@ -276,17 +316,25 @@ def simulated_sample(datasets, *, rng, label: str = "simulated", cuts: SampleCut
     rng = np.random.default_rng(rng)
     tables, excluded = [], {}
     for i, ds in enumerate(datasets):
-        t = survivor_table(ds, rng=rng, project_sin_i=project_sin_i, star_mass=star_mass,
-                           energy_tolerance=energy_tolerance, include_capped=include_capped,
-                           rescale_a=rescale_a, circularise_tidal=tidal == "circularise")
+        t = survivor_table(
+            ds,
+            rng=rng,
+            project_sin_i=project_sin_i,
+            star_mass=star_mass,
+            energy_tolerance=energy_tolerance,
+            include_capped=include_capped,
+            rescale_a=rescale_a,
+            circularise_tidal=tidal == "circularise",
+        )
         t["ensemble"] = np.full(t["e"].size, i, dtype=np.int64)
         tables.append(t)
-        for k, v in quality_counts(ds, energy_tolerance=energy_tolerance,
-                                   include_capped=include_capped).items():
+        for k, v in quality_counts(ds, energy_tolerance=energy_tolerance, include_capped=include_capped).items():
             excluded[k] = excluded.get(k, 0) + v
     table = {k: np.concatenate([t[k] for t in tables]) for k in tables[0]}
-    n_survivors = sum(int(survivor_mask(ds, energy_tolerance=energy_tolerance,
-                                        include_capped=include_capped).sum()) for ds in datasets)
+    n_survivors = sum(
+        int(survivor_mask(ds, energy_tolerance=energy_tolerance, include_capped=include_capped).sum())
+        for ds in datasets
+    )
     log = CutLog()
     log.record("systems", "systems", excluded["systems"])
     log.record("systems_kept", "systems kept (quality cuts)", excluded["kept"])
@@ -300,15 +348,18 @@ def simulated_sample(datasets, *, rng, label: str = "simulated", cuts: SampleCut
     mass_column = "msini" if project_sin_i else "mass"
     for name, values in (("a", table["a"]), ("period", table["period"]), ("mass", table[mass_column])):
         scale, unit = {"a": (1.0, "AU"), "period": (YEAR_S / DAY_S, "d"), "mass": (1.0 / MJUP_MSUN, "M_J")}[name]
-        keep = log.apply(keep, values, getattr(cuts, name), name if name != "mass" else mass_column,
-                         scale, unit)
+        keep = log.apply(keep, values, getattr(cuts, name), name if name != "mass" else mass_column, scale, unit)
     if survey is not None:
         keep &= (table["K"] >= survey.k_min) & (table["period"] <= survey.baseline)
-        log.record("rv_detectable", f"RV-detectable (K >= {survey.k_min:g} m/s, "
-                   f"P <= {survey.baseline:g} yr)", int(keep.sum()))
+        log.record(
+            "rv_detectable", f"RV-detectable (K >= {survey.k_min:g} m/s, P <= {survey.baseline:g} yr)", int(keep.sum())
+        )
     notes = (RESCALE_NOTE,) if rescale_a is not None else ()
     if tidal == "circularise":
-        notes += (f"{int(table['tidal'].sum())} tidal-circularisation candidates given the circular orbit "
-                  "of equal angular momentum (a -> a(1 - e^2), e -> 0) before the cuts",)
-    return SimulatedSample(label=label, table={k: v[keep] for k, v in table.items()}, log=log,
-                           excluded=excluded, notes=notes)
+        notes += (
+            f"{int(table['tidal'].sum())} tidal-circularisation candidates given the circular orbit "
+            "of equal angular momentum (a -> a(1 - e^2), e -> 0) before the cuts",
+        )
+    return SimulatedSample(
+        label=label, table={k: v[keep] for k, v in table.items()}, log=log, excluded=excluded, notes=notes
+    )

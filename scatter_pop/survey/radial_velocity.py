@@ -70,8 +70,13 @@ def semi_amplitude(m_planet, period, e, m_star, sin_i=1.0):
     e = np.asarray(e, dtype=float)
     total = np.asarray(m_star, dtype=float) + m
     with np.errstate(invalid="ignore", divide="ignore"):
-        k = ((TWO_PI * G_AU_YR_MSUN / p) ** (1.0 / 3.0) * m * np.asarray(sin_i, dtype=float)
-             * total ** (-2.0 / 3.0) / np.sqrt(np.where((e >= 0) & (e < 1), 1.0 - e * e, np.nan)))
+        k = (
+            (TWO_PI * G_AU_YR_MSUN / p) ** (1.0 / 3.0)
+            * m
+            * np.asarray(sin_i, dtype=float)
+            * total ** (-2.0 / 3.0)
+            / np.sqrt(np.where((e >= 0) & (e < 1), 1.0 - e * e, np.nan))
+        )
     k = k * AU_PER_YR_MS
     return k if k.ndim else float(k)
 

@@ -22,10 +22,15 @@ import scipy.special
 
 from scatter_pop.survey.statistics import TwoSampleResult, two_sample
 
-__all__ = ["Spread", "ResampledComparison", "split_normal_truncated",
-           "observed_uncertainty_spread", "simulated_bootstrap_spread"]
+__all__ = [
+    "Spread",
+    "ResampledComparison",
+    "split_normal_truncated",
+    "observed_uncertainty_spread",
+    "simulated_bootstrap_spread",
+]
 
-_E_MAX = float(np.nextafter(1.0, 0.0))   # largest eccentricity below 1
+_E_MAX = float(np.nextafter(1.0, 0.0))  # largest eccentricity below 1
 
 
 @dataclass(frozen=True)
@@ -37,7 +42,7 @@ class Spread:
     p84: float
 
     @classmethod
-    def of(cls, values) -> "Spread":
+    def of(cls, values) -> Spread:
         v = np.asarray(values, dtype=float)
         lo, med, hi = np.percentile(v, [16.0, 50.0, 84.0])
         return cls(median=float(med), p16=float(lo), p84=float(hi))
@@ -70,16 +75,17 @@ class ResampledComparison:
 
 def _summarise(kind: str, results: list[TwoSampleResult], n_varied: int) -> ResampledComparison:
     return ResampledComparison(
-        kind=kind, draws=len(results),
+        kind=kind,
+        draws=len(results),
         ks_statistic=Spread.of([r.ks_statistic for r in results]),
         ks_pvalue=Spread.of([r.ks_pvalue for r in results]),
         ad_statistic=Spread.of([r.ad_statistic for r in results]),
         ad_pvalue=Spread.of([r.ad_pvalue for r in results]),
-        n_varied=int(n_varied))
+        n_varied=int(n_varied),
+    )
 
 
-def split_normal_truncated(mode, sigma_lo, sigma_hi, rng, lower: float = 0.0,
-                           upper: float = 1.0) -> np.ndarray:
+def split_normal_truncated(mode, sigma_lo, sigma_hi, rng, lower: float = 0.0, upper: float = 1.0) -> np.ndarray:
     """Draw from split normals truncated to [lower, upper), by inverse CDF.
 
     The split normal has its mode at ``mode``, a half-Gaussian of width
@@ -98,8 +104,7 @@ def split_normal_truncated(mode, sigma_lo, sigma_hi, rng, lower: float = 0.0,
     lower, upper : float
         Truncation bounds; results lie in [lower, upper).
     """
-    mode, slo, shi = np.broadcast_arrays(*(np.asarray(v, dtype=float)
-                                           for v in (mode, sigma_lo, sigma_hi)))
+    mode, slo, shi = np.broadcast_arrays(*(np.asarray(v, dtype=float) for v in (mode, sigma_lo, sigma_hi)))
     slo = np.where(np.isfinite(slo), np.abs(slo), 0.0)
     shi = np.where(np.isfinite(shi), np.abs(shi), 0.0)
     total = slo + shi
@@ -109,8 +114,11 @@ def split_normal_truncated(mode, sigma_lo, sigma_hi, rng, lower: float = 0.0,
     def cdf(x):
         below = np.divide(x - mode, slo, out=np.full_like(x, -np.inf), where=slo > 0)
         above = np.divide(x - mode, shi, out=np.full_like(x, np.inf), where=shi > 0)
-        return np.where(x < mode, 2.0 * w_lo * scipy.special.ndtr(below),
-                        w_lo + 2.0 * (1.0 - w_lo) * (scipy.special.ndtr(above) - 0.5))
+        return np.where(
+            x < mode,
+            2.0 * w_lo * scipy.special.ndtr(below),
+            w_lo + 2.0 * (1.0 - w_lo) * (scipy.special.ndtr(above) - 0.5),
+        )
 
     f_lo = cdf(np.full_like(mode, lower))
     f_hi = cdf(np.full_like(mode, upper))
@@ -128,8 +136,9 @@ def _children(rng, n: int):
     return np.random.default_rng(rng).spawn(n)
 
 
-def observed_uncertainty_spread(simulated, observed, err_lo, err_hi, *, draws: int = 200,
-                                permutations: int = 200, rng=None) -> ResampledComparison:
+def observed_uncertainty_spread(
+    simulated, observed, err_lo, err_hi, *, draws: int = 200, permutations: int = 200, rng=None
+) -> ResampledComparison:
     """Repeat the comparison with observed eccentricities redrawn from their errors.
 
     Parameters
@@ -157,8 +166,9 @@ def observed_uncertainty_spread(simulated, observed, err_lo, err_hi, *, draws: i
     return _summarise("observed_uncertainty", results, n_varied)
 
 
-def simulated_bootstrap_spread(simulated, observed, *, draws: int = 200,
-                               permutations: int = 200, rng=None) -> ResampledComparison:
+def simulated_bootstrap_spread(
+    simulated, observed, *, draws: int = 200, permutations: int = 200, rng=None
+) -> ResampledComparison:
     """Repeat the comparison on bootstrap resamples of the simulated sample.
 
     Parameters

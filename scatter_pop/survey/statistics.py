@@ -26,9 +26,18 @@ import numpy as np
 import scipy.stats
 
 __all__ = [
-    "TwoSampleResult", "two_sample", "ks_critical_coefficient", "ks_critical_value",
-    "ad_ksamp", "ad_sigma", "ADResult", "REFERENCE_DISTRIBUTIONS", "reference_distribution",
-    "OneSampleResult", "one_sample", "fit_beta",
+    "TwoSampleResult",
+    "two_sample",
+    "ks_critical_coefficient",
+    "ks_critical_value",
+    "ad_ksamp",
+    "ad_sigma",
+    "ADResult",
+    "REFERENCE_DISTRIBUTIONS",
+    "reference_distribution",
+    "OneSampleResult",
+    "one_sample",
+    "fit_beta",
 ]
 
 
@@ -100,9 +109,14 @@ def two_sample(x, y, *, permutations: int = 2000, rng=None) -> TwoSampleResult:
     else:
         ad_stat, ad_p = _ad_permutation(x, y, int(permutations), rng)
     return TwoSampleResult(
-        ks_statistic=float(ks.statistic), ks_pvalue=float(ks.pvalue),
-        ad_statistic=ad_stat, ad_pvalue=ad_p, n_x=int(x.size), n_y=int(y.size),
-        permutations=int(permutations))
+        ks_statistic=float(ks.statistic),
+        ks_pvalue=float(ks.pvalue),
+        ad_statistic=ad_stat,
+        ad_pvalue=ad_p,
+        n_x=int(x.size),
+        n_y=int(y.size),
+        permutations=int(permutations),
+    )
 
 
 def _ad_permutation(x: np.ndarray, y: np.ndarray, permutations: int, rng) -> tuple[float, float]:
@@ -122,7 +136,7 @@ def _ad_permutation(x: np.ndarray, y: np.ndarray, permutations: int, rng) -> tup
     n = n1 + n2
     _, codes, tie = np.unique(np.concatenate([x, y]), return_inverse=True, return_counts=True)
     groups = tie.size
-    b_mid = np.cumsum(tie) - tie / 2.0                      # B_aj: pooled below z_j plus half the ties
+    b_mid = np.cumsum(tie) - tie / 2.0  # B_aj: pooled below z_j plus half the ties
     denom = b_mid * (n - b_mid) - n * tie / 4.0
     weight = np.divide(tie / n, denom, out=np.zeros(groups), where=denom > 0)
     factor = (n - 1.0) / n * (1.0 / n1 + 1.0 / n2)
@@ -134,12 +148,19 @@ def _ad_permutation(x: np.ndarray, y: np.ndarray, permutations: int, rng) -> tup
         rows = flat.shape[0]
         offset = flat + groups * np.arange(rows)[:, None]
         f = np.bincount(offset.ravel(), minlength=rows * groups).reshape(rows, groups)
-        m_mid = np.cumsum(f, axis=1) - f / 2.0              # M_a1j
+        m_mid = np.cumsum(f, axis=1) - f / 2.0  # M_a1j
         return (factor * np.sum(weight * (n * m_mid - n1 * b_mid) ** 2, axis=1)).reshape(shape)
 
     res = scipy.stats.permutation_test(
-        (codes[:n1], codes[n1:]), a2, permutation_type="independent", vectorized=True,
-        n_resamples=permutations, batch=max(1, 2_000_000 // n), alternative="greater", rng=rng)
+        (codes[:n1], codes[n1:]),
+        a2,
+        permutation_type="independent",
+        vectorized=True,
+        n_resamples=permutations,
+        batch=max(1, 2_000_000 // n),
+        alternative="greater",
+        rng=rng,
+    )
     t = (float(res.statistic) - 1.0) / ad_sigma([n1, n2])
     return t, float(res.pvalue)
 
@@ -196,10 +217,10 @@ def ad_sigma(sizes: list[int]) -> float:
     k = len(sizes)
     n = sum(sizes)
     big_h = sum(1.0 / s for s in sizes)
-    inv = 1.0 / np.arange(1, n, dtype=float)                  # 1/i, i = 1..N-1
+    inv = 1.0 / np.arange(1, n, dtype=float)  # 1/i, i = 1..N-1
     h = inv.sum()
     # g = sum_{i=1}^{N-2} sum_{j=i+1}^{N-1} 1 / ((N - i) j)
-    tail = np.cumsum(inv[::-1])[::-1]                         # tail[i-1] = sum_{j>=i} 1/j
+    tail = np.cumsum(inv[::-1])[::-1]  # tail[i-1] = sum_{j>=i} 1/j
     i = np.arange(1, n - 1)
     g = float(np.sum(tail[i] / (n - i)))
     a = (4 * g - 6) * (k - 1) + (10 - 6 * g) * big_h
@@ -261,8 +282,7 @@ def reference_distribution(name: str):
     if name == "rayleigh_jt2008":
         scale = _RAYLEIGH_SIGMA * math.sqrt(2.0)
         return scipy.stats.truncweibull_min(2.0, 0.0, 1.0 / scale, scale=scale)
-    raise ValueError(f"reference distribution {name!r} unknown; allowed: "
-                     f"{', '.join(REFERENCE_DISTRIBUTIONS)}")
+    raise ValueError(f"reference distribution {name!r} unknown; allowed: {', '.join(REFERENCE_DISTRIBUTIONS)}")
 
 
 @dataclass(frozen=True)
@@ -314,12 +334,22 @@ def one_sample(x, reference: str, *, samples: int = 2000, rng=None) -> OneSample
         ad_stat, ad_p = math.inf, 0.0
     else:
         ad = scipy.stats.goodness_of_fit(
-            scipy.stats.uniform, u, known_params={"loc": 0.0, "scale": 1.0}, statistic="ad",
-            n_mc_samples=int(samples), rng=np.random.default_rng(rng))
+            scipy.stats.uniform,
+            u,
+            known_params={"loc": 0.0, "scale": 1.0},
+            statistic="ad",
+            n_mc_samples=int(samples),
+            rng=np.random.default_rng(rng),
+        )
         ad_stat, ad_p = float(ad.statistic), float(ad.pvalue)
-    return OneSampleResult(reference=reference, ks_statistic=float(ks.statistic),
-                           ks_pvalue=float(ks.pvalue), ad_statistic=ad_stat, ad_pvalue=ad_p,
-                           n=int(x.size))
+    return OneSampleResult(
+        reference=reference,
+        ks_statistic=float(ks.statistic),
+        ks_pvalue=float(ks.pvalue),
+        ad_statistic=ad_stat,
+        ad_pvalue=ad_p,
+        n=int(x.size),
+    )
 
 
 def fit_beta(x) -> tuple[float, float]:

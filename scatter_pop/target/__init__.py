@@ -11,5 +11,4 @@ from scatter_pop.target.judgement import Judgement, judge
 from scatter_pop.target.planet import Target, TargetPoint, Windows
 from scatter_pop.target.verdict import render_json, render_text, verdict_sentence
 
-__all__ = ["judge", "Judgement", "Target", "Windows", "TargetPoint", "render_text", "render_json",
-           "verdict_sentence"]
+__all__ = ["judge", "Judgement", "Target", "Windows", "TargetPoint", "render_text", "render_json", "verdict_sentence"]

@@ -21,8 +21,7 @@ __all__ = ["planet_count", "mass_ratio", "min_spacing", "mutual_hill_spacing"]
 
 def planet_count(ds: xr.Dataset) -> np.ndarray:
     """Initial number of planets of each system (int array over ``system``)."""
-    return np.sum(np.isfinite(ds["mass_initial"].values) & (ds["mass_initial"].values > 0),
-                  axis=1).astype(int)
+    return np.sum(np.isfinite(ds["mass_initial"].values) & (ds["mass_initial"].values > 0), axis=1).astype(int)
 
 
 def mass_ratio(ds: xr.Dataset) -> np.ndarray:
@@ -53,8 +52,7 @@ def mutual_hill_spacing(a_in, a_out, m_in, m_out, m_star):
         (a_out − a_in) / R_H,m, dimensionless.
     """
     a_in, a_out = np.asarray(a_in, float), np.asarray(a_out, float)
-    r_h = ((np.asarray(m_in, float) + np.asarray(m_out, float)) / (3.0 * m_star)) ** (1.0 / 3.0) \
-        * 0.5 * (a_in + a_out)
+    r_h = ((np.asarray(m_in, float) + np.asarray(m_out, float)) / (3.0 * m_star)) ** (1.0 / 3.0) * 0.5 * (a_in + a_out)
     return (a_out - a_in) / r_h
 
 

@@ -21,11 +21,10 @@ from dataclasses import dataclass
 import numpy as np
 import xarray as xr
 
-from scatter_pop.target.proportions import Proportion, proportion
 from scatter_pop.store.schema import quality_mask
+from scatter_pop.target.proportions import Proportion, proportion
 
-__all__ = ["BRANCHES", "BRANCH_LABELS", "system_branch", "planet_branch", "BranchRatio",
-           "branching_ratios"]
+__all__ = ["BRANCHES", "BRANCH_LABELS", "system_branch", "planet_branch", "BranchRatio", "branching_ratios"]
 
 BRANCHES = ("none", "ejection", "merger", "star", "several")
 
@@ -80,8 +79,9 @@ class BranchRatio:
     proportion: Proportion
 
 
-def branching_ratios(ds: xr.Dataset, *, mask=None, confidence: float = 0.95,
-                     method: str = "exact") -> tuple[BranchRatio, ...]:
+def branching_ratios(
+    ds: xr.Dataset, *, mask=None, confidence: float = 0.95, method: str = "exact"
+) -> tuple[BranchRatio, ...]:
     """Fraction of systems in each branch, with binomial intervals.
 
     Parameters
@@ -101,6 +101,6 @@ def branching_ratios(ds: xr.Dataset, *, mask=None, confidence: float = 0.95,
     mask = np.asarray(mask, dtype=bool)
     branch = system_branch(ds)[mask]
     n = int(mask.sum())
-    return tuple(BranchRatio(b, proportion(int(np.sum(branch == b)), n, confidence=confidence,
-                                           method=method))
-                 for b in BRANCHES)
+    return tuple(
+        BranchRatio(b, proportion(int(np.sum(branch == b)), n, confidence=confidence, method=method)) for b in BRANCHES
+    )

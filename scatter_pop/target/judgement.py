@@ -31,18 +31,26 @@ import numpy as np
 import scipy.stats
 import xarray as xr
 
-from scatter_pop.target.branches import system_branch
-from scatter_pop.target.architecture import mass_ratio, min_spacing, planet_count
 from scatter_pop.engine.outcome import EndReason
-from scatter_pop.target.pathways import ConfigComparison, Pathways, compare_configurations, pathways
-from scatter_pop.target.proportions import Proportion, proportion
 from scatter_pop.store.schema import ENERGY_TOLERANCE_DEFAULT, quality_mask
 from scatter_pop.survey.forward_model import ensemble_star_mass, quality_counts, survivor_table
-from scatter_pop.target.planet import Target, Windows
+from scatter_pop.target.architecture import mass_ratio, min_spacing, planet_count
+from scatter_pop.target.branches import system_branch
 from scatter_pop.target.matching import hard_match, soft_weight
+from scatter_pop.target.pathways import ConfigComparison, Pathways, compare_configurations, pathways
+from scatter_pop.target.planet import Target, Windows
+from scatter_pop.target.proportions import Proportion, proportion
 
-__all__ = ["WeightedFraction", "EnsembleJudgement", "Judgement", "SystemFrame", "system_frame",
-           "judge_frame", "judge", "pool_frames"]
+__all__ = [
+    "WeightedFraction",
+    "EnsembleJudgement",
+    "Judgement",
+    "SystemFrame",
+    "system_frame",
+    "judge_frame",
+    "judge",
+    "pool_frames",
+]
 
 
 @dataclass(frozen=True)
@@ -85,30 +93,36 @@ class SystemFrame:
     label: str
     n_total: int
     excluded: dict
-    branch: np.ndarray            # per system: branch name
+    branch: np.ndarray  # per system: branch name
     n_survivors: np.ndarray
     n_ejected: np.ndarray
     n_merged: np.ndarray
     n_star: np.ndarray
-    t_encounter: np.ndarray       # yr
+    t_encounter: np.ndarray  # yr
     mass_ratio: np.ndarray
-    spacing: np.ndarray           # mutual Hill radii
+    spacing: np.ndarray  # mutual Hill radii
     count: np.ndarray
-    unsettled: np.ndarray         # stopped at the end time with >= 2 survivors
-    t_end: np.ndarray             # yr
-    s_system: np.ndarray          # per survivor: position of its system in the arrays above
+    unsettled: np.ndarray  # stopped at the end time with >= 2 survivors
+    t_end: np.ndarray  # yr
+    s_system: np.ndarray  # per survivor: position of its system in the arrays above
     s_e: np.ndarray
-    s_a: np.ndarray               # AU
-    s_mass: np.ndarray            # M_sun, true (scaled by mass_scale)
-    s_msini: np.ndarray           # M_sun, projected
-    s_tidal: np.ndarray           # bool
+    s_a: np.ndarray  # AU
+    s_mass: np.ndarray  # M_sun, true (scaled by mass_scale)
+    s_msini: np.ndarray  # M_sun, projected
+    s_tidal: np.ndarray  # bool
     mass_scale: float
     star_mass: float | None
 
 
-def system_frame(ds: xr.Dataset, *, label: str, target: Target, seed: int = 0,
-                 energy_tolerance: float = ENERGY_TOLERANCE_DEFAULT,
-                 include_capped: bool = False) -> SystemFrame:
+def system_frame(
+    ds: xr.Dataset,
+    *,
+    label: str,
+    target: Target,
+    seed: int = 0,
+    energy_tolerance: float = ENERGY_TOLERANCE_DEFAULT,
+    include_capped: bool = False,
+) -> SystemFrame:
     """Extract the arrays of one ensemble (systems used only).
 
     Parameters
@@ -129,52 +143,80 @@ def system_frame(ds: xr.Dataset, *, label: str, target: Target, seed: int = 0,
         Keep systems stopped by the wall-clock cap.
     """
     reason = ds["end_reason"].values
-    use = np.asarray(quality_mask(ds, energy_tolerance=energy_tolerance,
-                                  include_capped=include_capped).values, dtype=bool)
+    use = np.asarray(
+        quality_mask(ds, energy_tolerance=energy_tolerance, include_capped=include_capped).values, dtype=bool
+    )
     counts = quality_counts(ds, energy_tolerance=energy_tolerance, include_capped=include_capped)
     excluded = {"failed": counts["failed"], "capped": counts["capped"], "energy": counts["energy_error"]}
     m_star = ensemble_star_mass(ds, name=label)
     scale = target.mstar / m_star if target.mstar is not None else 1.0
-    table = survivor_table(ds, rng=np.random.default_rng(seed), project_sin_i=not target.true_mass,
-                           energy_tolerance=energy_tolerance, include_capped=include_capped)
+    table = survivor_table(
+        ds,
+        rng=np.random.default_rng(seed),
+        project_sin_i=not target.true_mass,
+        energy_tolerance=energy_tolerance,
+        include_capped=include_capped,
+    )
     ids = ds["system"].values
     order = np.argsort(ids, kind="stable")
-    row = order[np.searchsorted(ids, table["system"], sorter=order)]     # position in ds
-    pos = np.cumsum(use) - 1                                            # position among used systems
+    row = order[np.searchsorted(ids, table["system"], sorter=order)]  # position in ds
+    pos = np.cumsum(use) - 1  # position among used systems
     n_surv = ds["n_survivors"].values[use].astype(int)
     return SystemFrame(
-        label=label, n_total=int(ds.sizes["system"]), excluded=excluded,
-        branch=system_branch(ds)[use], n_survivors=n_surv,
+        label=label,
+        n_total=int(ds.sizes["system"]),
+        excluded=excluded,
+        branch=system_branch(ds)[use],
+        n_survivors=n_surv,
         n_ejected=ds["n_ejected"].values[use].astype(int),
         n_merged=ds["n_merged"].values[use].astype(int),
         n_star=ds["n_star"].values[use].astype(int),
         t_encounter=ds["t_first_encounter"].values[use].astype(float),
-        mass_ratio=mass_ratio(ds)[use], spacing=min_spacing(ds, m_star)[use],
+        mass_ratio=mass_ratio(ds)[use],
+        spacing=min_spacing(ds, m_star)[use],
         count=planet_count(ds)[use],
         unsettled=((reason[use] == int(EndReason.END_TIME)) & (n_surv >= 2)),
         t_end=ds["t_end"].values[use].astype(float),
-        s_system=pos[row], s_e=table["e"], s_a=table["a"], s_mass=table["mass"] * scale,
+        s_system=pos[row],
+        s_e=table["e"],
+        s_a=table["a"],
+        s_mass=table["mass"] * scale,
         s_msini=table["msini"] * scale,
         s_tidal=ds["tidal_candidate"].values[row, table["planet"]] == 1,
-        mass_scale=float(scale), star_mass=m_star)
+        mass_scale=float(scale),
+        star_mass=m_star,
+    )
 
 
 def pool_frames(frames: list[SystemFrame], label: str = "all ensembles") -> SystemFrame:
     """Concatenate frames of several ensembles into one (a mixture weighted by size)."""
     offsets = np.cumsum([0] + [f.branch.size for f in frames])[:-1]
     cat = lambda name: np.concatenate([getattr(f, name) for f in frames])  # noqa: E731
-    per_system = ("branch", "n_survivors", "n_ejected", "n_merged", "n_star", "t_encounter",
-                  "mass_ratio", "spacing", "count", "unsettled", "t_end")
+    per_system = (
+        "branch",
+        "n_survivors",
+        "n_ejected",
+        "n_merged",
+        "n_star",
+        "t_encounter",
+        "mass_ratio",
+        "spacing",
+        "count",
+        "unsettled",
+        "t_end",
+    )
     per_survivor = ("s_e", "s_a", "s_mass", "s_msini", "s_tidal")
     scales = {f.mass_scale for f in frames}
     stars = {f.star_mass for f in frames}
     return SystemFrame(
-        label=label, n_total=sum(f.n_total for f in frames),
+        label=label,
+        n_total=sum(f.n_total for f in frames),
         excluded={k: sum(f.excluded[k] for f in frames) for k in frames[0].excluded},
         **{n: cat(n) for n in per_system + per_survivor},
         s_system=np.concatenate([f.s_system + o for f, o in zip(frames, offsets)]),
         mass_scale=scales.pop() if len(scales) == 1 else float("nan"),
-        star_mass=stars.pop() if len(stars) == 1 else None)
+        star_mass=stars.pop() if len(stars) == 1 else None,
+    )
 
 
 @dataclass(frozen=True)
@@ -238,15 +280,21 @@ class Judgement:
     energy_tolerance: float = ENERGY_TOLERANCE_DEFAULT
 
 
-def _bootstrap(data: tuple, statistic, *, n: int, confidence: float, resamples: int,
-               rng) -> WeightedFraction:
+def _bootstrap(data: tuple, statistic, *, n: int, confidence: float, resamples: int, rng) -> WeightedFraction:
     value = float(statistic(*data, axis=-1)) if n else float("nan")
     expected = float(np.sum(data[0]))
     if n < 2 or np.all(data[0] == data[0][0]):
         return WeightedFraction(value, value, value, expected, n, confidence, 0)
-    res = scipy.stats.bootstrap(data, statistic, paired=True, vectorized=True,
-                                n_resamples=resamples, confidence_level=confidence,
-                                method="percentile", rng=rng)
+    res = scipy.stats.bootstrap(
+        data,
+        statistic,
+        paired=True,
+        vectorized=True,
+        n_resamples=resamples,
+        confidence_level=confidence,
+        method="percentile",
+        rng=rng,
+    )
     ci = res.confidence_interval
     return WeightedFraction(value, float(ci.low), float(ci.high), expected, n, confidence, resamples)
 
@@ -259,8 +307,16 @@ def _mean(w, axis=-1):
     return np.mean(w, axis=axis)
 
 
-def judge_frame(frame: SystemFrame, target: Target, windows: Windows, *, confidence: float = 0.95,
-                method: str = "exact", resamples: int = 2000, seed: int = 0) -> EnsembleJudgement:
+def judge_frame(
+    frame: SystemFrame,
+    target: Target,
+    windows: Windows,
+    *,
+    confidence: float = 0.95,
+    method: str = "exact",
+    resamples: int = 2000,
+    seed: int = 0,
+) -> EnsembleJudgement:
     """Judge one frame (see the module docstring).
 
     Parameters
@@ -291,28 +347,45 @@ def judge_frame(frame: SystemFrame, target: Target, windows: Windows, *, confide
     rng = np.random.default_rng(seed)
     finite_a = frame.s_a[np.isfinite(frame.s_a)]
     return EnsembleJudgement(
-        label=frame.label, n_total=frame.n_total, n_systems=n_sys, n_survivors=int(frame.s_e.size),
+        label=frame.label,
+        n_total=frame.n_total,
+        n_systems=n_sys,
+        n_survivors=int(frame.s_e.size),
         excluded=dict(frame.excluded),
         systems=proportion(int(sys_match.sum()), n_sys, confidence=confidence, method=method),
-        survivors=proportion(int(match.sum()), int(frame.s_e.size), confidence=confidence,
-                             method=method),
-        weighted_systems=_bootstrap((w_sys,), _mean, n=n_sys, confidence=confidence,
-                                    resamples=resamples, rng=rng),
-        weighted_survivors=_bootstrap((w_sum, frame.n_survivors.astype(float)), _ratio, n=n_sys,
-                                      confidence=confidence, resamples=resamples, rng=rng),
+        survivors=proportion(int(match.sum()), int(frame.s_e.size), confidence=confidence, method=method),
+        weighted_systems=_bootstrap((w_sys,), _mean, n=n_sys, confidence=confidence, resamples=resamples, rng=rng),
+        weighted_survivors=_bootstrap(
+            (w_sum, frame.n_survivors.astype(float)),
+            _ratio,
+            n=n_sys,
+            confidence=confidence,
+            resamples=resamples,
+            rng=rng,
+        ),
         pathways=pathways(frame, sys_match, match),
         configurations=compare_configurations(frame, sys_match),
-        a_survivors=((float(finite_a.min()), float(finite_a.max())) if finite_a.size
-                     else (float("nan"), float("nan"))),
+        a_survivors=((float(finite_a.min()), float(finite_a.max())) if finite_a.size else (float("nan"), float("nan"))),
         n_unsettled=int(frame.unsettled.sum()),
         t_end_max=float(np.nanmax(frame.t_end)) if n_sys else float("nan"),
-        mass_scale=frame.mass_scale, star_mass=frame.star_mass)
+        mass_scale=frame.mass_scale,
+        star_mass=frame.star_mass,
+    )
 
 
-def judge(datasets, target: Target, windows: Windows | None = None, *, labels=None, seed: int = 0,
-          confidence: float = 0.95, method: str = "exact", resamples: int = 2000,
-          energy_tolerance: float = ENERGY_TOLERANCE_DEFAULT,
-          include_capped: bool = False) -> Judgement:
+def judge(
+    datasets,
+    target: Target,
+    windows: Windows | None = None,
+    *,
+    labels=None,
+    seed: int = 0,
+    confidence: float = 0.95,
+    method: str = "exact",
+    resamples: int = 2000,
+    energy_tolerance: float = ENERGY_TOLERANCE_DEFAULT,
+    include_capped: bool = False,
+) -> Judgement:
     """Judge a target planet against one or more ensembles.
 
     Parameters
@@ -350,8 +423,12 @@ def judge(datasets, target: Target, windows: Windows | None = None, *, labels=No
     labels = list(labels) if labels is not None else [f"ensemble {i + 1}" for i in range(len(datasets))]
     if len(labels) != len(datasets):
         raise ValueError(f"{len(labels)} labels for {len(datasets)} datasets")
-    frames = [system_frame(ds, label=lab, target=target, seed=seed, energy_tolerance=energy_tolerance,
-                           include_capped=include_capped) for ds, lab in zip(datasets, labels)]
+    frames = [
+        system_frame(
+            ds, label=lab, target=target, seed=seed, energy_tolerance=energy_tolerance, include_capped=include_capped
+        )
+        for ds, lab in zip(datasets, labels)
+    ]
     kw = dict(confidence=confidence, method=method, resamples=resamples, seed=seed)
     results = tuple(judge_frame(f, target, windows, **kw) for f in frames)
     pooled = judge_frame(pool_frames(frames), target, windows, **kw) if len(frames) > 1 else None

@@ -32,8 +32,8 @@ from scatter_pop.target.planet import Target, Windows
 
 __all__ = ["hard_match", "soft_weight", "sin_i_cdf", "msini_kernel", "msini_window_probability"]
 
-_NODES = 2048                      # equal-probability nodes of the orientation average
-_CHUNK = 2048                      # planets per block of the quadrature
+_NODES = 2048  # equal-probability nodes of the orientation average
+_CHUNK = 2048  # planets per block of the quadrature
 
 
 def sin_i_cdf(s):
@@ -69,9 +69,9 @@ def msini_kernel(m_true, m_obs: float, sigma: float):
     s = _sin_i_nodes()
     out = np.zeros(m.size)
     for start in range(0, m.size, _CHUNK):
-        block = m[start:start + _CHUNK, None]
+        block = m[start : start + _CHUNK, None]
         z = (block * s[None, :] - m_obs) / sigma
-        out[start:start + _CHUNK] = np.exp(-0.5 * z * z).mean(axis=1)
+        out[start : start + _CHUNK] = np.exp(-0.5 * z * z).mean(axis=1)
     out[~np.isfinite(m)] = 0.0
     return out.reshape(np.shape(m_true))
 
@@ -109,8 +109,7 @@ def hard_match(e, a, msini, target: Target, windows: Windows):
     e, a, msini = (np.asarray(x, dtype=float) for x in (e, a, msini))
     a_lo, a_hi = windows.a_range(target)
     m_lo, m_hi = windows.msini_range(target)
-    return ((e >= windows.e_min(target)) & (e < 1.0) & (a >= a_lo) & (a <= a_hi)
-            & (msini >= m_lo) & (msini <= m_hi))
+    return (e >= windows.e_min(target)) & (e < 1.0) & (a >= a_lo) & (a <= a_hi) & (msini >= m_lo) & (msini <= m_hi)
 
 
 def soft_weight(e, a, m_true, target: Target, windows: Windows):

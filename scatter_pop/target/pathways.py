@@ -30,8 +30,7 @@ import scipy.stats
 
 from scatter_pop.target.branches import BRANCHES
 
-__all__ = ["Spread", "Pathways", "ConfigComparison", "pathways", "compare_configurations",
-           "CONFIG_QUANTITIES"]
+__all__ = ["Spread", "Pathways", "ConfigComparison", "pathways", "compare_configurations", "CONFIG_QUANTITIES"]
 
 #: frame attribute -> (description, unit)
 CONFIG_QUANTITIES = {
@@ -51,7 +50,7 @@ class Spread:
     n: int
 
     @classmethod
-    def of(cls, values) -> "Spread":
+    def of(cls, values) -> Spread:
         v = np.asarray(values, dtype=float)
         v = v[np.isfinite(v)]
         if v.size == 0:
@@ -102,8 +101,11 @@ class Pathways:
 
 
 def _lost(frame, sel) -> dict:
-    return {"ejected": int(frame.n_ejected[sel].sum()), "merged": int(frame.n_merged[sel].sum()),
-            "star": int(frame.n_star[sel].sum())}
+    return {
+        "ejected": int(frame.n_ejected[sel].sum()),
+        "merged": int(frame.n_merged[sel].sum()),
+        "star": int(frame.n_star[sel].sum()),
+    }
 
 
 def pathways(frame, sys_match, planet_match) -> Pathways:
@@ -123,16 +125,23 @@ def pathways(frame, sys_match, planet_match) -> Pathways:
     left = sorted(set(frame.n_survivors.tolist()))
     q = frame.s_a[planet_match] * (1.0 - frame.s_e[planet_match])
     return Pathways(
-        n_matching=int(sys_match.sum()), n_all=int(sys_match.size), n_planets=int(planet_match.sum()),
-        branches=tuple((b, int(np.sum(frame.branch[sys_match] == b)), int(np.sum(frame.branch == b)))
-                       for b in BRANCHES),
-        lost_matching=_lost(frame, sys_match), lost_all=_lost(frame, everyone),
-        survivors_left=tuple((int(k), int(np.sum(frame.n_survivors[sys_match] == k)),
-                              int(np.sum(frame.n_survivors == k))) for k in left),
+        n_matching=int(sys_match.sum()),
+        n_all=int(sys_match.size),
+        n_planets=int(planet_match.sum()),
+        branches=tuple(
+            (b, int(np.sum(frame.branch[sys_match] == b)), int(np.sum(frame.branch == b))) for b in BRANCHES
+        ),
+        lost_matching=_lost(frame, sys_match),
+        lost_all=_lost(frame, everyone),
+        survivors_left=tuple(
+            (int(k), int(np.sum(frame.n_survivors[sys_match] == k)), int(np.sum(frame.n_survivors == k))) for k in left
+        ),
         instability_matching=Spread.of(frame.t_encounter[sys_match]),
         instability_all=Spread.of(frame.t_encounter),
         tidal_candidates=int(frame.s_tidal[planet_match].sum()),
-        pericentre=Spread.of(q), unsettled_matching=int(np.sum(frame.unsettled[sys_match])))
+        pericentre=Spread.of(q),
+        unsettled_matching=int(np.sum(frame.unsettled[sys_match])),
+    )
 
 
 @dataclass(frozen=True)
@@ -191,6 +200,5 @@ def compare_configurations(frame, sys_match) -> tuple[ConfigComparison, ...]:
             u = scipy.stats.mannwhitneyu(x, y, alternative="two-sided").statistic
             delta = float(2.0 * u / (x.size * y.size) - 1.0)
             ks_p = float(scipy.stats.ks_2samp(x, y, method="auto").pvalue)
-        out.append(ConfigComparison(key, quantity, unit, _median(x), _median(v), int(x.size),
-                                    int(y.size), delta, ks_p))
+        out.append(ConfigComparison(key, quantity, unit, _median(x), _median(v), int(x.size), int(y.size), delta, ks_p))
     return tuple(out)

@@ -28,8 +28,7 @@ from dataclasses import dataclass
 from scatter_pop.constants import MJUP_MSUN
 from scatter_pop.errors import InputError
 
-__all__ = ["Target", "Windows", "TargetPoint", "target_from_flags", "windows_from_flags",
-           "target_point_from_flag"]
+__all__ = ["Target", "Windows", "TargetPoint", "target_from_flags", "windows_from_flags", "target_point_from_flag"]
 
 
 @dataclass(frozen=True)
@@ -64,8 +63,15 @@ class Target:
     true_mass: bool = False
 
     def __post_init__(self):
-        if not (0.0 <= self.e < 1.0 and self.a > 0 and self.msini > 0 and self.e_err >= 0
-                and self.a_err >= 0 and self.msini_err >= 0 and (self.mstar is None or self.mstar > 0)):
+        if not (
+            0.0 <= self.e < 1.0
+            and self.a > 0
+            and self.msini > 0
+            and self.e_err >= 0
+            and self.a_err >= 0
+            and self.msini_err >= 0
+            and (self.mstar is None or self.mstar > 0)
+        ):
             raise ValueError(f"target values out of range: {self!r}")
 
 
@@ -79,8 +85,9 @@ def _number(flag: str, value, allowed: str, ok) -> float:
     return x
 
 
-def target_from_flags(*, e, e_err, a, a_err, msini, msini_err, mstar=None,
-                      name: str = "target", true_mass: bool = False) -> Target:
+def target_from_flags(
+    *, e, e_err, a, a_err, msini, msini_err, mstar=None, name: str = "target", true_mass: bool = False
+) -> Target:
     """Check command-line target values and build a :class:`Target`.
 
     Parameters
@@ -111,8 +118,7 @@ def target_from_flags(*, e, e_err, a, a_err, msini, msini_err, mstar=None,
     msini_err = _number("--msini-err", msini_err, ">= 0 (M_J)", lambda x: x >= 0)
     if mstar is not None:
         mstar = _number("--mstar", mstar, "> 0 (M_sun)", lambda x: x > 0)
-    return Target(e, e_err, a, a_err, msini * MJUP_MSUN, msini_err * MJUP_MSUN, mstar, str(name),
-                  bool(true_mass))
+    return Target(e, e_err, a, a_err, msini * MJUP_MSUN, msini_err * MJUP_MSUN, mstar, str(name), bool(true_mass))
 
 
 @dataclass(frozen=True)
@@ -156,8 +162,9 @@ class Windows:
         return max(t.e - self.e_sigmas * t.e_err, 0.0)
 
 
-def windows_from_flags(target: Target, *, a_window=2.0, a_factor=None, msini_window=2.0,
-                       msini_factor=None, e_window=0.0) -> Windows:
+def windows_from_flags(
+    target: Target, *, a_window=2.0, a_factor=None, msini_window=2.0, msini_factor=None, e_window=0.0
+) -> Windows:
     """Check the window flags against the target and build :class:`Windows`.
 
     Raises
@@ -172,13 +179,16 @@ def windows_from_flags(target: Target, *, a_window=2.0, a_factor=None, msini_win
     if a_factor is not None:
         a_factor = _number("--a-factor", a_factor, "> 1", lambda x: x > 1)
     elif target.a_err == 0:
-        raise InputError("--a-err 0: the a window of ±--a-window x --a-err is empty; "
-                         "give --a-err > 0 or --a-factor F (> 1)")
+        raise InputError(
+            "--a-err 0: the a window of ±--a-window x --a-err is empty; give --a-err > 0 or --a-factor F (> 1)"
+        )
     if msini_factor is not None:
         msini_factor = _number("--msini-factor", msini_factor, "> 1", lambda x: x > 1)
     elif target.msini_err == 0:
-        raise InputError("--msini-err 0: the m sin i window of ±--msini-window x --msini-err is "
-                         "empty; give --msini-err > 0 or --msini-factor F (> 1)")
+        raise InputError(
+            "--msini-err 0: the m sin i window of ±--msini-window x --msini-err is "
+            "empty; give --msini-err > 0 or --msini-factor F (> 1)"
+        )
     return Windows(a_window, a_factor, msini_window, msini_factor, e_window)
 
 

@@ -80,8 +80,9 @@ def upper_limit(n: int, confidence: float = 0.95) -> float:
     """
     if n < 1:
         raise ValueError(f"n must be >= 1, got {n}")
-    return float(scipy.stats.binomtest(0, n, alternative="less").proportion_ci(
-        confidence_level=confidence, method="exact").high)
+    return float(
+        scipy.stats.binomtest(0, n, alternative="less").proportion_ci(confidence_level=confidence, method="exact").high
+    )
 
 
 def proportion(k: int, n: int, *, confidence: float = 0.95, method: str = "exact") -> Proportion:

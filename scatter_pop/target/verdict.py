@@ -54,8 +54,11 @@ def describe_target(j: Judgement) -> list[str]:
     star = f", M* = {t.mstar:g} M_sun" if t.mstar is not None else ""
     a_lo, a_hi = w.a_range(t)
     m_lo, m_hi = w.msini_range(t)
-    projection = ("true masses compared (target mass is a true mass)" if t.true_mass else
-                  f"simulated m sin i = m x sin i with one isotropic draw of sin i per planet, seed {j.seed}")
+    projection = (
+        "true masses compared (target mass is a true mass)"
+        if t.true_mass
+        else f"simulated m sin i = m x sin i with one isotropic draw of sin i per planet, seed {j.seed}"
+    )
     return [
         f"Target {t.name}: e = {t.e:g} ± {t.e_err:g}, a = {t.a:g} ± {t.a_err:g} AU, "
         f"{mass_word} = {t.msini / MJUP_MSUN:.3g} ± {t.msini_err / MJUP_MSUN:.3g} M_J{star}",
@@ -73,30 +76,40 @@ def verdict_sentence(r: EnsembleJudgement, j: Judgement) -> str:
         return f"No system of this ensemble entered the statistics: nothing can be said about {name}."
     if p.k == 0:
         r3 = f"; rule of three: 3/N = {_pct(p.rule_of_three)}" if p.rule_of_three is not None else ""
-        return (f"No system of {p.n} made a planet like {name}. At {conf} confidence scattering in this "
-                f"ensemble makes one in fewer than {_pct(p.upper_limit)} of systems (exact one-sided "
-                f"binomial upper limit, 1 - {1 - p.confidence:g}^(1/N){r3}). That is a limit, not a "
-                f"verdict against scattering: other initial conditions or a larger ensemble may do better.")
+        return (
+            f"No system of {p.n} made a planet like {name}. At {conf} confidence scattering in this "
+            f"ensemble makes one in fewer than {_pct(p.upper_limit)} of systems (exact one-sided "
+            f"binomial upper limit, 1 - {1 - p.confidence:g}^(1/N){r3}). That is a limit, not a "
+            f"verdict against scattering: other initial conditions or a larger ensemble may do better."
+        )
     one_in = 1.0 / p.fraction
-    return (f"Scattering in this ensemble makes a planet like {name} in {p.k} of {p.n} systems, "
-            f"{_pct(p.fraction)} ({conf} {p.method_name} interval {_pct(p.low)} to {_pct(p.high)}), about "
-            f"1 system in {one_in:.0f}: {rate_words(p.fraction)}. So scattering can produce such a "
-            f"planet from these initial conditions.")
+    return (
+        f"Scattering in this ensemble makes a planet like {name} in {p.k} of {p.n} systems, "
+        f"{_pct(p.fraction)} ({conf} {p.method_name} interval {_pct(p.low)} to {_pct(p.high)}), about "
+        f"1 system in {one_in:.0f}: {rate_words(p.fraction)}. So scattering can produce such a "
+        f"planet from these initial conditions."
+    )
 
 
 def caveats(r: EnsembleJudgement, j: Judgement) -> list[str]:
     """The caveats that apply to this ensemble's numbers."""
     t, w = j.target, j.windows
-    out = [f"Finite sample: the intervals count only the sampling noise of {r.n_systems} systems; they "
-           f"say nothing about whether the initial conditions (masses, spacings, planet count) are "
-           f"those of real systems, nor about how common such systems are."]
-    cuts = (f"Cuts: the answer depends on the windows (--a-window, --a-factor, --msini-window, "
-            f"--e-window); the likelihood-weighted fraction uses the uncertainties instead.")
+    out = [
+        f"Finite sample: the intervals count only the sampling noise of {r.n_systems} systems; they "
+        f"say nothing about whether the initial conditions (masses, spacings, planet count) are "
+        f"those of real systems, nor about how common such systems are."
+    ]
+    cuts = (
+        "Cuts: the answer depends on the windows (--a-window, --a-factor, --msini-window, "
+        "--e-window); the likelihood-weighted fraction uses the uncertainties instead."
+    )
     ex = r.excluded
     if sum(ex.values()):
-        cuts += (f" {sum(ex.values())} of {r.n_total} systems were left out ({ex['failed']} failed, "
-                 f"{ex['capped']} stopped by the wall-clock cap, {ex['energy']} with |dE/E| > "
-                 f"{j.energy_tolerance:g}).")
+        cuts += (
+            f" {sum(ex.values())} of {r.n_total} systems were left out ({ex['failed']} failed, "
+            f"{ex['capped']} stopped by the wall-clock cap, {ex['energy']} with |dE/E| > "
+            f"{j.energy_tolerance:g})."
+        )
         if ex["capped"]:
             cuts += " Capped systems are the long-lived ones: leaving them out can bias the fractions."
     out.append(cuts)
@@ -105,36 +118,47 @@ def caveats(r: EnsembleJudgement, j: Judgement) -> list[str]:
     if not math.isfinite(s_lo):
         out.append("No bound survivors in the systems used: nothing to compare with.")
     elif not (s_hi >= a_lo and s_lo <= a_hi):
-        out.append(f"Scaling: no survivor lies in the a window (survivors span {_num(s_lo)} to "
-                   f"{_num(s_hi, 'AU')}). Point-mass gravity is scale-free (a -> λa, t -> λ^1.5 t), "
-                   f"but collisions between planets, with the star and tidal disruption are not: "
-                   f"run an ensemble placed at the target's separation rather than rescaling.")
+        out.append(
+            f"Scaling: no survivor lies in the a window (survivors span {_num(s_lo)} to "
+            f"{_num(s_hi, 'AU')}). Point-mass gravity is scale-free (a -> λa, t -> λ^1.5 t), "
+            f"but collisions between planets, with the star and tidal disruption are not: "
+            f"run an ensemble placed at the target's separation rather than rescaling."
+        )
     if t.mstar is not None and math.isfinite(r.mass_scale) and abs(r.mass_scale - 1.0) < 1e-9:
         out.append("Scaling: the target's star has the ensemble's mass; masses compared as simulated.")
     elif t.mstar is not None:
-        factor = (f"= {r.mass_scale:.3g} " if math.isfinite(r.mass_scale) else "(per ensemble) ")
-        out.append(f"Scaling: simulated masses were multiplied by M*_target / M*_ensemble {factor}to keep "
-                   f"the planet-to-star mass ratios; the orbits were not rescaled.")
+        factor = f"= {r.mass_scale:.3g} " if math.isfinite(r.mass_scale) else "(per ensemble) "
+        out.append(
+            f"Scaling: simulated masses were multiplied by M*_target / M*_ensemble {factor}to keep "
+            f"the planet-to-star mass ratios; the orbits were not rescaled."
+        )
     else:
         star = f"a {r.star_mass:g} M_sun star" if r.star_mass is not None else "their ensembles' stars"
         out.append(f"Scaling: --mstar not given; masses compared as simulated around {star}.")
     if not t.true_mass:
-        out.append(f"Projection: the counts use one random draw of sin i per planet (seed {j.seed}); "
-                   f"the likelihood-weighted fractions average over orientations instead.")
+        out.append(
+            f"Projection: the counts use one random draw of sin i per planet (seed {j.seed}); "
+            f"the likelihood-weighted fractions average over orientations instead."
+        )
     if r.n_unsettled:
-        text = (f"Unfinished: {r.n_unsettled} systems reached the end time ({_num(r.t_end_max, 'yr')}) "
-                f"with two or more planets not certified Hill-stable; their orbits may still change")
+        text = (
+            f"Unfinished: {r.n_unsettled} systems reached the end time ({_num(r.t_end_max, 'yr')}) "
+            f"with two or more planets not certified Hill-stable; their orbits may still change"
+        )
         if r.pathways.n_matching:
-            text += (f" ({r.pathways.unsettled_matching} of the {r.pathways.n_matching} matching systems "
-                     f"among them)")
+            text += f" ({r.pathways.unsettled_matching} of the {r.pathways.n_matching} matching systems among them)"
         out.append(text + ".")
     if r.pathways.tidal_candidates:
-        out.append(f"Tides: {r.pathways.tidal_candidates} of the {r.pathways.n_planets} matching planets "
-                   f"have pericentres below the circularisation threshold; tides may shrink and "
-                   f"circularise their orbits, after which they would no longer look like {t.name}.")
-    out.append("Measurement: least-squares RV fits overestimate e at low signal-to-noise (Shen & Turner "
-               "2008, ApJ 685, 553; Zakamska, Pan & Ford 2011, MNRAS 410, 1895); if the target's K/σ is "
-               "low its true e may be lower than measured.")
+        out.append(
+            f"Tides: {r.pathways.tidal_candidates} of the {r.pathways.n_planets} matching planets "
+            f"have pericentres below the circularisation threshold; tides may shrink and "
+            f"circularise their orbits, after which they would no longer look like {t.name}."
+        )
+    out.append(
+        "Measurement: least-squares RV fits overestimate e at low signal-to-noise (Shen & Turner "
+        "2008, ApJ 685, 553; Zakamska, Pan & Ford 2011, MNRAS 410, 1895); if the target's K/σ is "
+        "low its true e may be lower than measured."
+    )
     return out
 
 
@@ -142,19 +166,25 @@ def _ensemble_lines(r: EnsembleJudgement, j: Judgement) -> list[str]:
     p, s, ws, wv = r.systems, r.survivors, r.weighted_systems, r.weighted_survivors
     pw, conf = r.pathways, f"{100 * j.confidence:g} %"
     ex = r.excluded
-    lines = [f"== {r.label} ==",
-             f"systems: {r.n_total} in the file, {r.n_systems} used, {sum(ex.values())} left out "
-             f"({ex['failed']} failed, {ex['capped']} capped, {ex['energy']} energy error); "
-             f"{r.n_survivors} surviving planets",
-             "like the target:"]
+    lines = [
+        f"== {r.label} ==",
+        f"systems: {r.n_total} in the file, {r.n_systems} used, {sum(ex.values())} left out "
+        f"({ex['failed']} failed, {ex['capped']} capped, {ex['energy']} energy error); "
+        f"{r.n_survivors} surviving planets",
+        "like the target:",
+    ]
     for word, q in (("systems", p), ("survivors", s)):
-        extra = (f"; {conf} one-sided upper limit {_pct(q.upper_limit)}" if q.k == 0 and q.n else "")
-        lines.append(f"  {word:<10}{q.k:>6} / {q.n:<6} = {_pct(q.fraction):>8}   {conf} {q.method_name} "
-                     f"interval {_pct(q.low)} to {_pct(q.high)}{extra}")
+        extra = f"; {conf} one-sided upper limit {_pct(q.upper_limit)}" if q.k == 0 and q.n else ""
+        lines.append(
+            f"  {word:<10}{q.k:>6} / {q.n:<6} = {_pct(q.fraction):>8}   {conf} {q.method_name} "
+            f"interval {_pct(q.low)} to {_pct(q.high)}{extra}"
+        )
     lines.append("likelihood-weighted (measurement uncertainties instead of windows):")
     for word, q in (("systems", ws), ("survivors", wv)):
-        lines.append(f"  {word:<10}{_pct(q.value):>17}   bootstrap {conf}: {_pct(q.low)} to "
-                     f"{_pct(q.high)}; expected matches {q.expected:.3g}")
+        lines.append(
+            f"  {word:<10}{_pct(q.value):>17}   bootstrap {conf}: {_pct(q.low)} to "
+            f"{_pct(q.high)}; expected matches {q.expected:.3g}"
+        )
     lines.append("verdict: " + verdict_sentence(r, j))
     if pw.n_matching == 0:
         lines.append("pathways and starting configurations: no matching system to describe.")
@@ -162,21 +192,29 @@ def _ensemble_lines(r: EnsembleJudgement, j: Judgement) -> list[str]:
         return lines + [f"  - {c}" for c in caveats(r, j)]
     lines.append(f"pathways of the {pw.n_matching} matching systems [all {pw.n_all} systems]:")
     lm, la = pw.lost_matching, pw.lost_all
-    lines.append(f"  other planets: {lm['ejected']} ejected, {lm['merged']} merged, {lm['star']} lost to "
-                 f"the star [{la['ejected']}, {la['merged']}, {la['star']}]")
+    lines.append(
+        f"  other planets: {lm['ejected']} ejected, {lm['merged']} merged, {lm['star']} lost to "
+        f"the star [{la['ejected']}, {la['merged']}, {la['star']}]"
+    )
     lines.append("  branch: " + ", ".join(f"{b} {k} [{n}]" for b, k, n in pw.branches))
     lines.append("  survivors left: " + ", ".join(f"{n_left}: {k} [{n}]" for n_left, k, n in pw.survivors_left))
     im, ia = pw.instability_matching, pw.instability_all
-    lines.append(f"  instability began (first close encounter): median {_num(im.median, 'yr')} (16-84 %: "
-                 f"{_num(im.p16)} to {_num(im.p84, 'yr')}) [median {_num(ia.median, 'yr')}]")
-    lines.append(f"  tidal-circularisation candidates: {pw.tidal_candidates} of {pw.n_planets} matching "
-                 f"planets; their pericentres: median {_num(pw.pericentre.median, 'AU')}")
+    lines.append(
+        f"  instability began (first close encounter): median {_num(im.median, 'yr')} (16-84 %: "
+        f"{_num(im.p16)} to {_num(im.p84, 'yr')}) [median {_num(ia.median, 'yr')}]"
+    )
+    lines.append(
+        f"  tidal-circularisation candidates: {pw.tidal_candidates} of {pw.n_planets} matching "
+        f"planets; their pericentres: median {_num(pw.pericentre.median, 'AU')}"
+    )
     lines.append("starting configurations, matching systems vs the others:")
     for c in r.configurations:
         unit = f" {c.unit}" if c.unit else ""
-        lines.append(f"  {c.quantity}: median {_num(c.median_matching)}{unit} vs {_num(c.median_all)}{unit}"
-                     f" over all; Cliff's delta {_num(c.cliffs_delta)}, KS p = {_num(c.ks_pvalue)} "
-                     f"(n = {c.n_matching} vs {c.n_rest})")
+        lines.append(
+            f"  {c.quantity}: median {_num(c.median_matching)}{unit} vs {_num(c.median_all)}{unit}"
+            f" over all; Cliff's delta {_num(c.cliffs_delta)}, KS p = {_num(c.ks_pvalue)} "
+            f"(n = {c.n_matching} vs {c.n_rest})"
+        )
     lines.append("caveats:")
     lines += [f"  - {c}" for c in caveats(r, j)]
     return lines
@@ -189,8 +227,11 @@ def render_text(j: Judgement) -> str:
         lines.append("")
         lines += _ensemble_lines(r, j)
     if j.pooled is not None:
-        lines += ["", "(The pooled block mixes the ensembles in proportion to their sizes; it is a "
-                      "comparison aid for the planet count, not a population model.)"]
+        lines += [
+            "",
+            "(The pooled block mixes the ensembles in proportion to their sizes; it is a "
+            "comparison aid for the planet count, not a population model.)",
+        ]
     return "\n".join(lines) + "\n"
 
 
@@ -207,15 +248,21 @@ def _clean(x):
 def to_dict(j: Judgement) -> dict:
     """The judgement as plain JSON-ready values (NaN -> None), with verdicts and caveats."""
     doc = dataclasses.asdict(j)
-    doc["units"] = {"a": "au", "msini": "Msun", "mstar": "Msun", "t": "yr",
-                    "fractions": "1", "instability": "yr", "pericentre": "au"}
+    doc["units"] = {
+        "a": "au",
+        "msini": "Msun",
+        "mstar": "Msun",
+        "t": "yr",
+        "fractions": "1",
+        "instability": "yr",
+        "pericentre": "au",
+    }
     t = j.target
     doc["target"]["msini_mjup"] = t.msini / MJUP_MSUN
     doc["target"]["msini_err_mjup"] = t.msini_err / MJUP_MSUN
     a_lo, a_hi = j.windows.a_range(t)
     m_lo, m_hi = j.windows.msini_range(t)
-    doc["windows"].update({"e_min": j.windows.e_min(t), "a_range": [a_lo, a_hi],
-                           "msini_range": [m_lo, m_hi]})
+    doc["windows"].update({"e_min": j.windows.e_min(t), "a_range": [a_lo, a_hi], "msini_range": [m_lo, m_hi]})
     blocks = list(j.ensembles) + ([j.pooled] if j.pooled is not None else [])
     docs = list(doc["ensembles"]) + ([doc["pooled"]] if j.pooled is not None else [])
     for r, d in zip(blocks, docs):

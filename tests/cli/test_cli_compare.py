@@ -4,13 +4,23 @@ import json
 from pathlib import Path
 
 import pytest
-
 from records import random_ensemble, write_run
+
 from scatter_pop.cli.main import main
 
 DATA = Path(__file__).resolve().parents[1] / "data" / "observed_rv_giants.csv"
-FAST = ["--permutations", "99", "--error-draws", "4", "--bootstrap", "4", "--spread-permutations", "19",
-        "--reference-samples", "99"]
+FAST = [
+    "--permutations",
+    "99",
+    "--error-draws",
+    "4",
+    "--bootstrap",
+    "4",
+    "--spread-permutations",
+    "19",
+    "--reference-samples",
+    "99",
+]
 
 
 @pytest.fixture(scope="module")
@@ -29,19 +39,33 @@ def _run(capsys, argv):
 
 def test_text_table_on_shipped_catalogue(runs, capsys):
     two, three = runs
-    code, out, err = _run(capsys, [str(two), str(three), "--observed", str(DATA), "--rv-survey", "3,10",
-                                   "--mass-range", "0.3,15", *FAST])
+    code, out, err = _run(
+        capsys, [str(two), str(three), "--observed", str(DATA), "--rv-survey", "3,10", "--mass-range", "0.3,15", *FAST]
+    )
     assert code == 0, err
-    assert "e not exactly 0 (fixed circular fits left out)" in out and " 602" in out   # README: 602
+    assert "e not exactly 0 (fixed circular fits left out)" in out and " 602" in out  # README: 602
     assert "two_planet" in out and "three_planet" in out and "RV-detectable" in out
-    assert "Beta MLE (e > 0): a = 0.997, b = 2.781" in out                            # README fit
+    assert "Beta MLE (e > 0): a = 0.997, b = 2.781" in out  # README fit
 
 
 def test_json_and_nc_path_and_output_file(runs, capsys, tmp_path):
     two, _ = runs
     out_file = tmp_path / "res" / "cmp.json"
-    code, out, err = _run(capsys, [str(two / "ensemble.nc"), "--observed", str(DATA), "--format", "json",
-                                   "--output", str(out_file), "--seed", "4", *FAST])
+    code, out, err = _run(
+        capsys,
+        [
+            str(two / "ensemble.nc"),
+            "--observed",
+            str(DATA),
+            "--format",
+            "json",
+            "--output",
+            str(out_file),
+            "--seed",
+            "4",
+            *FAST,
+        ],
+    )
     assert code == 0 and out == "", err
     doc = json.loads(out_file.read_text())
     assert doc["observed"]["counts"][-1]["n"] == 602 and doc["options"]["seed"] == 4
@@ -54,11 +78,9 @@ def test_json_and_nc_path_and_output_file(runs, capsys, tmp_path):
 
 def test_latex_and_csv(runs, capsys):
     two, three = runs
-    code, out, _ = _run(capsys, [str(two), str(three), "--observed", str(DATA), "--format", "latex",
-                                 "--pool", *FAST])
+    code, out, _ = _run(capsys, [str(two), str(three), "--observed", str(DATA), "--format", "latex", "--pool", *FAST])
     assert code == 0 and r"\toprule" in out and "pooled" in out and r"two\_planet" in out
-    code, out, _ = _run(capsys, [str(two), "--observed", str(DATA), "--format", "csv", "--references", "none",
-                                 *FAST])
+    code, out, _ = _run(capsys, [str(two), "--observed", str(DATA), "--format", "csv", "--references", "none", *FAST])
     lines = out.strip().splitlines()
     assert code == 0 and len(lines) == 2 and lines[0].startswith("sample,against,test")
 
@@ -93,7 +115,7 @@ def test_bad_flags_one_line_exit_2(runs, capsys, flags, word, tmp_path):
     code, out, err = _run(capsys, [str(two), "--observed", str(DATA), *flags, "--output", str(keep)])
     assert code == 2 and out == ""
     assert len(err.strip().splitlines()) == 1 and word in err and "Traceback" not in err
-    assert keep.read_text() == "earlier result\n"          # nothing already written is lost
+    assert keep.read_text() == "earlier result\n"  # nothing already written is lost
 
 
 HEADER = "id,e,e_err_lo,e_err_hi,a_au,period_days,mass_mjup,mstar_msun"
@@ -160,27 +182,27 @@ def test_real_run_folder_incomplete_then_partial(capsys, tmp_path):
     # a run folder as the ensemble store writes it: spec file plus part files; 40 of 60 systems
     from scatter_pop.spec.reader import parse_spec
     from scatter_pop.store.run_folder import prepare_folder
+
     spec = parse_spec(RUN_SPEC)
     folder = prepare_folder(spec, tmp_path / "run", log=lambda *a: None)
     folder.path.mkdir(parents=True)
     folder.spec_path.write_text(spec.text)
     ds = random_ensemble(40, 5, lambda r: r.beta(1.0, 3.0))
-    del ds.attrs["star_mass"]                       # the star mass must come from the stored spec
+    del ds.attrs["star_mass"]  # the star mass must come from the stored spec
     folder.write_part(ds.isel(system=slice(0, 20)), spec)
     folder.write_part(ds.isel(system=slice(20, 40)), spec)
     code, _, err = _run(capsys, [str(folder.path), "--observed", str(DATA), *FAST])
     assert code == 2 and "incomplete (40/60 systems)" in err and len(err.strip().splitlines()) == 1
-    code, out, err = _run(capsys, [str(folder.path), "--observed", str(DATA), "--partial", "--format", "json",
-                                   *FAST])
+    code, out, err = _run(capsys, [str(folder.path), "--observed", str(DATA), "--partial", "--format", "json", *FAST])
     assert code == 0, err
     doc = json.loads(out)
     counts = {c["key"]: c["n"] for c in doc["samples"][0]["counts"]}
     assert counts["systems"] == 40 and counts["survivors"] == 40
     # K used the stored spec's 0.9 M_sun star: compare with radial_velocity for one planet
-    from scatter_pop.survey.forward_model import survivor_table
-    from scatter_pop.survey.comparison import load_ensemble
     from scatter_pop.survey import radial_velocity as rv
+    from scatter_pop.survey.comparison import load_ensemble
+    from scatter_pop.survey.forward_model import survivor_table
+
     t = survivor_table(load_ensemble(folder.path, partial=True), rng=0)
     assert t["m_star"][0] == 0.9
-    assert t["K"][0] == pytest.approx(rv.semi_amplitude_from_a(t["mass"][0], t["a"][0], t["e"][0], 0.9,
-                                                                t["sin_i"][0]))
+    assert t["K"][0] == pytest.approx(rv.semi_amplitude_from_a(t["mass"][0], t["a"][0], t["e"][0], 0.9, t["sin_i"][0]))

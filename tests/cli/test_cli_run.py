@@ -11,14 +11,15 @@ from __future__ import annotations
 import re
 
 import pytest
+from ensemble_helpers import run_cli, write_spec
 
 from scatter_pop.cli.main import main
 from scatter_pop.store.run_folder import open_ensemble
 
-from ensemble_helpers import run_cli, write_spec
-
-PROGRESS = re.compile(r"^\[scatter-pop\] (\d+)/(\d+) systems \(\d+\.\d %\) \| ejected \d+ merged \d+ star \d+ \| "
-                      r"capped \d+ failed \d+ \| \d+:\d\d:\d\d elapsed, ETA (\d+:\d\d:\d\d|\?)$")
+PROGRESS = re.compile(
+    r"^\[scatter-pop\] (\d+)/(\d+) systems \(\d+\.\d %\) \| ejected \d+ merged \d+ star \d+ \| "
+    r"capped \d+ failed \d+ \| \d+:\d\d:\d\d elapsed, ETA (\d+:\d\d:\d\d|\?)$"
+)
 
 
 @pytest.mark.slow
@@ -26,7 +27,7 @@ def test_run_then_status_as_real_processes(tmp_path):
     spec = write_spec(tmp_path / "tiny.toml", systems=4)
     proc = run_cli("run", spec, "--workers", "2", "--progress-every", "0.01")
     assert proc.returncode == 0, proc.stderr
-    out = tmp_path / "tiny_out"                                   # default: beside the spec
+    out = tmp_path / "tiny_out"  # default: beside the spec
     lines = proc.stdout.splitlines()
     assert lines[0].startswith("dashboard: ")
     assert "\r" not in proc.stdout and "\x1b" not in proc.stdout
@@ -56,13 +57,16 @@ def test_dry_run_changes_nothing(tmp_path, capsys):
     assert sorted(p.name for p in tmp_path.iterdir()) == ["tiny.toml"]
 
 
-@pytest.mark.parametrize("flags, named", [
-    (["--workers", "0"], "--workers"),
-    (["--batch-size", "-1"], "--batch-size"),
-    (["--progress-every", "0"], "--progress-every"),
-    (["--scheduler", "tcp://127.0.0.1:1", "--workers", "2"], "--scheduler"),
-    (["--cluster", "no_such_cluster.toml"], "--cluster"),
-])
+@pytest.mark.parametrize(
+    "flags, named",
+    [
+        (["--workers", "0"], "--workers"),
+        (["--batch-size", "-1"], "--batch-size"),
+        (["--progress-every", "0"], "--progress-every"),
+        (["--scheduler", "tcp://127.0.0.1:1", "--workers", "2"], "--scheduler"),
+        (["--cluster", "no_such_cluster.toml"], "--cluster"),
+    ],
+)
 def test_bad_flags_are_one_line_with_status_2(tmp_path, capsys, flags, named):
     spec = write_spec(tmp_path / "tiny.toml")
     assert main(["run", str(spec), "--out", str(tmp_path / "out"), *flags]) == 2
@@ -88,6 +92,7 @@ def test_missing_spec_and_non_run_folders(tmp_path, capsys):
 @pytest.mark.slow
 def test_run_attached_to_a_running_scheduler(tmp_path):
     from scatter_pop.ensemble.cluster import ClusterConfig, connect
+
     spec = write_spec(tmp_path / "tiny.toml", systems=3)
     with connect(ClusterConfig(dashboard_port=0), workers=1) as client:
         address = client.scheduler.address

@@ -45,8 +45,7 @@ msini = 2.0
 msini_err = 0.5
 """
 
-FIGURES = ("e_histogram_by_branch", "e_cdf", "a_e_plane", "branching_ratios", "instability_times",
-           "e_vs_mass_ratio")
+FIGURES = ("e_histogram_by_branch", "e_cdf", "a_e_plane", "branching_ratios", "instability_times", "e_vs_mass_ratio")
 
 
 @pytest.mark.slow
@@ -69,11 +68,13 @@ def test_demo_pipeline_on_a_tiny_spec(tmp_path, capsys):
     assert verdict["ensembles"][0]["n_total"] == 4
     assert "invented" in printed and "verdict:" in printed and str(out / "figures") in printed
     comparison = json.loads((out / "comparison.json").read_text())
-    assert comparison["observed"]["summary"]["n"] == 602          # REFERENCES.md: 602 with e > 0
+    assert comparison["observed"]["summary"]["n"] == 602  # REFERENCES.md: 602 with e > 0
 
     # a rerun computes nothing and writes the same numbers (seeded from the run seed)
-    before = {p: p.read_bytes() for p in (out / "verdict.json", out / "figures" / "branching_ratios.csv",
-                                          out / "figures" / "e_cdf_stats.csv")}
+    before = {
+        p: p.read_bytes()
+        for p in (out / "verdict.json", out / "figures" / "branching_ratios.csv", out / "figures" / "e_cdf_stats.csv")
+    }
     assert demo.main([str(spec), "--out", str(out), "--workers", "1", "--format", "png"]) == 0
     assert "nothing to compute" in capsys.readouterr().out
     for path, content in before.items():
@@ -87,7 +88,7 @@ def test_demo_bad_target_file_is_one_line_and_exit_2(tmp_path, capsys):
     assert demo.main([str(spec), "--out", str(tmp_path / "out")]) == 2
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and "--e" in err[0] and "tiny_target.toml" in err[0]
-    assert not (tmp_path / "out").exists()                        # nothing started
+    assert not (tmp_path / "out").exists()  # nothing started
 
 
 def test_shipped_demo_files_are_valid_and_labelled_invented():
@@ -96,7 +97,7 @@ def test_shipped_demo_files_are_valid_and_labelled_invented():
     assert "invented" in spec.run.name.lower() and "INVENTED" in spec.text
     target, survey, invented = demo.load_demo_target(root / "demo_target.toml")
     assert invented and "invented" in target.name
-    assert target.e >= 0.8                                        # an extreme planet
+    assert target.e >= 0.8  # an extreme planet
     assert survey is not None
     for name in ("paper_two_planets.toml", "paper_three_planets.toml"):
         paper = load_spec(root / name)

@@ -70,8 +70,16 @@ def initial_energy(ini):
     sim.G = G
     sim.add(m=ini.star_mass)
     for k in range(ini.count):
-        sim.add(primary=sim.particles[0], m=ini.mass[k], a=ini.a[k], e=ini.e[k], inc=ini.inc[k],
-                omega=ini.omega[k], Omega=ini.node[k], M=ini.mean_anomaly[k])
+        sim.add(
+            primary=sim.particles[0],
+            m=ini.mass[k],
+            a=ini.a[k],
+            e=ini.e[k],
+            inc=ini.inc[k],
+            omega=ini.omega[k],
+            Omega=ini.node[k],
+            M=ini.mean_anomaly[k],
+        )
     sim.move_to_com()
     return sim.energy()
 
@@ -101,7 +109,7 @@ def test_one_planet_is_ejected_and_the_other_survives(ejection):
 def test_energy_and_angular_momentum_books_close_through_the_ejection(ejection):
     # The removal is booked as E_before - E_after; an unbooked ejection would show here as the
     # ejected planet's energy, |E_ej/E_0| ~ 1e-2 for this system.  BS at the default tolerance 1e-10
-    # keeps |dE/E| ~ 1e-9..1e-8 over 1e5 yr (DEVELOPERS.md, measured); 1e-7 leaves room for that.
+    # keeps |dE/E| ~ 1e-9..1e-8 over 1e5 yr (docs/internals/engine.md, measured); 1e-7 leaves room for that.
     _, _, rec = ejection
     assert abs(rec.energy_error) < 1e-7
     assert abs(rec.angmom_error) < 1e-7
@@ -123,13 +131,13 @@ def test_survivor_is_inside_the_parabolic_ejection_bound(ejection):
     m, a, e, m_star = ini.mass, ini.a, ini.e, ini.star_mass
     m_s = survivor.mass_final
     bound = m_s / (m[0] / a[0] + m[1] / a[1])
-    assert bound == pytest.approx(a[0] * a[1] / (a[0] + a[1]), rel=1e-12)    # equal masses
-    assert bound / a[0] == pytest.approx(0.545, abs=5e-4)                   # REFERENCES.md, a_2/a_1 = 1.2
+    assert bound == pytest.approx(a[0] * a[1] / (a[0] + a[1]), rel=1e-12)  # equal masses
+    assert bound / a[0] == pytest.approx(0.545, abs=5e-4)  # REFERENCES.md, a_2/a_1 = 1.2
     e_pm = -sum(G * m_star * m[k] / (2 * a[k]) for k in range(2))
     delta = sum(G * m[k] ** 2 * (1 + e[k]) / (2 * a[k] * (1 - e[k])) for k in range(2))
-    assert initial_energy(ini) <= e_pm + delta                              # the inequality used
+    assert initial_energy(ini) <= e_pm + delta  # the inequality used
     limit = bound / (1 - delta / abs(e_pm)) * (1 + 1e-4)
-    assert limit / bound - 1 < 2 * max(m) / m_star                          # a correction of order m/M*
+    assert limit / bound - 1 < 2 * max(m) / m_star  # a correction of order m/M*
     assert survivor.a_final <= limit
     # sharper, with the exact E_0 instead of the inequality:
     assert survivor.a_final <= G * m_star * m_s / (2 * abs(initial_energy(ini))) * (1 + 1e-4)
@@ -150,14 +158,14 @@ def test_survivor_a_follows_from_the_ejected_planets_excess_energy(ejection):
     ejected = next(p for p in rec.planets if p.fate == Fate.EJECTED)
     m_star, m_s, m_ej = ini.star_mass, survivor.mass_final, ejected.mass_final
     a_f, e_f, a_ej = survivor.a_final, survivor.e_final, ejected.a_final
-    assert a_ej < 0.0 and ejected.e_final > 1.0             # this planet left on a hyperbolic orbit
+    assert a_ej < 0.0 and ejected.e_final > 1.0  # this planet left on a hyperbolic orbit
     e_ej = -G * (m_star + m_ej) * m_ej / (2 * a_ej)
     e_0 = initial_energy(ini)
-    assert 0.0 < e_ej < 0.05 * abs(e_0)                     # a small excess energy, as is typical
+    assert 0.0 < e_ej < 0.05 * abs(e_0)  # a small excess energy, as is typical
     predicted = G * m_star * m_s / (2 * (e_ej - e_0))
     mu = m_ej / m_star
     d = spec.integration.ejection_distance
-    r_min = d - 2 * mu * (d + a_f * (1 + e_f))              # the star sits near the centre of mass
+    r_min = d - 2 * mu * (d + a_f * (1 + e_f))  # the star sits near the centre of mass
     k = math.sqrt((1 + e_f) / (1 - e_f))
     x = a_f * (2 / r_min - 1 / a_ej)
     tolerance = 2 * mu * k * math.sqrt(x) + mu * x + 2 * mu * (1 + e_f) * a_f / r_min + 2 * (mu * k) ** 2
@@ -175,8 +183,18 @@ def test_bound_inner_planet_is_not_ejected_when_a_wide_companion_displaces_the_s
     # planet is bound to the star (two-body energy about the star < 0) and cannot have been ejected;
     # the outer one is bound and beyond the distance, so both are kept (the engine's stated rule).
     mj = 5 * MJUP_MSUN
-    ini = InitialSystem(1.0, R_SUN_AU, (mj, mj), (R_JUP_AU, R_JUP_AU), (1.0, 8000.0), (0.0, 0.5),
-                        (0.0, 0.0), (0.0, 0.0), (0.0, 0.0), (0.0, math.pi))
+    ini = InitialSystem(
+        1.0,
+        R_SUN_AU,
+        (mj, mj),
+        (R_JUP_AU, R_JUP_AU),
+        (1.0, 8000.0),
+        (0.0, 0.5),
+        (0.0, 0.0),
+        (0.0, 0.0),
+        (0.0, 0.0),
+        (0.0, math.pi),
+    )
     offset = mj * 8000.0 * 1.5 / (1.0 + 2 * mj)
     assert offset > 50.0
     rec = integrate_initial(ini, IntegrationSpec(end_time=200.0, ejection_distance=50.0), OutcomeSpec())

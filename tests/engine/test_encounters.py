@@ -8,8 +8,8 @@ import rebound
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from scatter_pop.engine import encounters as enc
 from scatter_pop.constants import G_AU_YR_MSUN, MJUP_MSUN, R_JUP_AU, R_SUN_AU
+from scatter_pop.engine import encounters as enc
 from scatter_pop.engine.ledger import FateEntry, Ledger, read_checkpoint, write_checkpoint
 from scatter_pop.errors import InputError
 
@@ -75,9 +75,10 @@ def test_merge_jump_equals_brute_force_difference(seed, boost):
     vm = (m[1] * v[1] + m[2] * v[2]) / mt
     m2, x2, v2 = np.array([m[0], mt, m[3]]), np.array([x[0], xm, x[3]]), np.array([v[0], vm, v[3]])
     scale = abs(_energy(m, x, v, G_AU_YR_MSUN))
-    assert de == pytest.approx(_energy(m2, x2, v2, G_AU_YR_MSUN) - _energy(m, x, v, G_AU_YR_MSUN),
-                               abs=1e-12 * scale)
-    np.testing.assert_allclose(dl, _angmom(m2, x2, v2) - _angmom(m, x, v), atol=1e-12 * np.linalg.norm(_angmom(m, x, v)))
+    assert de == pytest.approx(_energy(m2, x2, v2, G_AU_YR_MSUN) - _energy(m, x, v, G_AU_YR_MSUN), abs=1e-12 * scale)
+    np.testing.assert_allclose(
+        dl, _angmom(m2, x2, v2) - _angmom(m, x, v), atol=1e-12 * np.linalg.norm(_angmom(m, x, v))
+    )
     # the jump is the same in a translated, boosted frame (hybrid integrators' coordinates)
     de2, dl2 = enc.merge_jump(m, x + [1.0, -2.0, 0.5], v + np.asarray(boost), 1, 2, G_AU_YR_MSUN)
     assert de2 == pytest.approx(de, rel=1e-9, abs=1e-14 * scale)
@@ -156,7 +157,7 @@ def test_ledger_round_trips_exactly_through_a_checkpoint(tmp_path):
     assert blob == b"\x00binary\xff" * 10
     assert back.to_json() == led.to_json()
     assert back.energy_removed == -1e-9 / 3 and back.fates["p1"].a == -0.8
-    assert not list(tmp_path.glob("*.tmp*"))                  # the temporary file was renamed away
+    assert not list(tmp_path.glob("*.tmp*"))  # the temporary file was renamed away
 
 
 def test_truncated_checkpoint_is_refused(tmp_path):

@@ -12,10 +12,10 @@ import pytest
 from scatter_pop.constants import G_AU_YR_MSUN, MJUP_MSUN, R_JUP_AU, R_SUN_AU
 from scatter_pop.engine.initial_conditions import InitialSystem
 from scatter_pop.engine.integrate import integrate_initial
-from scatter_pop.engine.rebound_run import SystemRun
 from scatter_pop.engine.outcome import NO_PLANET, EndReason, Fate
-from scatter_pop.spec.reader import IntegrationSpec, OutcomeSpec
+from scatter_pop.engine.rebound_run import SystemRun
 from scatter_pop.engine.stability import tidal_disruption_radius
+from scatter_pop.spec.reader import IntegrationSpec, OutcomeSpec
 
 MJ, RJ = MJUP_MSUN, R_JUP_AU
 
@@ -23,13 +23,24 @@ MJ, RJ = MJUP_MSUN, R_JUP_AU
 def system(planets, star_mass=1.0, star_radius=R_SUN_AU):
     """InitialSystem from a list of dicts with m, r, a, e and optional inc, omega, node, M."""
     get = lambda key, default=0.0: tuple(float(p.get(key, default)) for p in planets)  # noqa: E731
-    return InitialSystem(star_mass, star_radius, get("m"), get("r", RJ), get("a"), get("e"), get("inc"),
-                         get("omega"), get("node"), get("M"), seed=99, index=0)
+    return InitialSystem(
+        star_mass,
+        star_radius,
+        get("m"),
+        get("r", RJ),
+        get("a"),
+        get("e"),
+        get("inc"),
+        get("omega"),
+        get("node"),
+        get("M"),
+        seed=99,
+        index=0,
+    )
 
 
 def run(initial, end_time, reference=False, **integ):
-    return integrate_initial(initial, IntegrationSpec(end_time=end_time, **integ), OutcomeSpec(),
-                             reference=reference)
+    return integrate_initial(initial, IntegrationSpec(end_time=end_time, **integ), OutcomeSpec(), reference=reference)
 
 
 def period(a, m_star=1.0, m=0.0):
@@ -50,15 +61,15 @@ def test_head_on_collision_merges_conserving_mass_and_momentum():
     initial = head_on()
     sim_run = SystemRun(initial, IntegrationSpec(end_time=5.0), OutcomeSpec(), None, True)
     p_before = total_momentum(sim_run.sim)
-    scale = MJ * 2 * math.pi * math.sqrt(1 / 5.0)          # planet momentum scale, M_sun AU/yr
-    assert np.linalg.norm(p_before) < 1e-15 * scale           # centre-of-mass frame
+    scale = MJ * 2 * math.pi * math.sqrt(1 / 5.0)  # planet momentum scale, M_sun AU/yr
+    assert np.linalg.norm(p_before) < 1e-15 * scale  # centre-of-mass frame
     rec = sim_run.run()
     p0, p1 = rec.planets
     assert (p0.fate, p1.fate) == (Fate.SURVIVED, Fate.MERGED)
     assert p1.merged_into == 0 and p0.merged_into == NO_PLANET
-    assert p0.mass_final == 3 * MJ                            # summed mass (exact in floating point)
+    assert p0.mass_final == 3 * MJ  # summed mass (exact in floating point)
     assert p1.mass_final == MJ
-    assert p0.radius_final == pytest.approx(RJ * 2 ** (1 / 3), rel=1e-14)   # volume conserved
+    assert p0.radius_final == pytest.approx(RJ * 2 ** (1 / 3), rel=1e-14)  # volume conserved
     assert sim_run.sim.N == 2
     assert np.linalg.norm(total_momentum(sim_run.sim) - p_before) < 1e-12 * scale
     # they meet after each has moved half the gap: t = 0.25 rad / n (two-body; focusing and the
@@ -74,22 +85,22 @@ def test_head_on_collision_merges_conserving_mass_and_momentum():
 def test_merger_in_settling_mode_stops_with_one_planet():
     rec = run(head_on(), 100.0)
     assert rec.end_reason == EndReason.ONE_PLANET
-    assert rec.count(Fate.MERGED) == 1 and rec.t_end == rec.planets[1].t_fate   # stops at the merger
+    assert rec.count(Fate.MERGED) == 1 and rec.t_end == rec.planets[1].t_fate  # stops at the merger
 
 
 def test_equal_mass_head_on_merger_falls_into_the_star():
     # equal and opposite momenta: the merged body is left at rest 5 AU from the star and falls in
     # radially in t_ff = pi/(2 sqrt 2) sqrt(r^3 / G M) = P(5 AU) / (4 sqrt 2) (two-body free fall)
     initial = system([dict(m=MJ, a=5.0, e=0.0), dict(m=MJ, a=5.0, e=0.0, inc=math.pi, M=-0.5)])
-    rec = run(initial, 100.0, reference=True)               # do not stop when one planet is left
+    rec = run(initial, 100.0, reference=True)  # do not stop when one planet is left
     p0, p1 = rec.planets
     assert (p0.fate, p1.fate) == (Fate.HIT_STAR, Fate.MERGED) and p1.merged_into == 0
     assert rec.end_reason == EndReason.NO_PLANETS
     t_ff = period(5.0, m=2 * MJ) / (4 * math.sqrt(2))
     assert p0.t_fate - p1.t_fate == pytest.approx(t_ff, rel=0.01)
     assert p0.mass_final == 2 * MJ and p0.e_final == pytest.approx(1.0, abs=1e-3)
-    assert rec.t_end == p0.t_fate                          # stopped at the event, not at a chunk end
-    assert abs(rec.energy_error) < 1e-8 and rec.angmom_error < 1e-8   # L0 ~ 0 here: scale sum |L_k|
+    assert rec.t_end == p0.t_fate  # stopped at the event, not at a chunk end
+    assert abs(rec.energy_error) < 1e-8 and rec.angmom_error < 1e-8  # L0 ~ 0 here: scale sum |L_k|
 
 
 # --------------------------------------------------------------------------- ejection
@@ -124,14 +135,15 @@ def test_bound_planet_beyond_ejection_distance_is_kept():
 
 def test_bound_wanderer_returns_and_escape_radius_is_reset():
     initial = wanderer(0.95, 100.0)
-    sim_run = SystemRun(initial, IntegrationSpec(end_time=1.05 * period(100.0), ejection_distance=100.0),
-                         OutcomeSpec(), None, True)
+    sim_run = SystemRun(
+        initial, IntegrationSpec(end_time=1.05 * period(100.0), ejection_distance=100.0), OutcomeSpec(), None, True
+    )
     rec = sim_run.run()
     assert rec.planets[1].fate == Fate.SURVIVED
     # back inside: rule restored -- the ejection distance from the star, i.e. from the origin (the
     # centre of mass) plus the star's offset from it
     star = sim_run.sim.particles[0]
-    offset = math.sqrt(star.x ** 2 + star.y ** 2 + star.z ** 2)
+    offset = math.sqrt(star.x**2 + star.y**2 + star.z**2)
     assert 0.0 < offset < 0.2
     assert sim_run.sim.exit_max_distance == pytest.approx(100.0 + offset, rel=1e-12)
 
@@ -160,7 +172,7 @@ def test_pericentre_inside_disruption_distance_disrupts():
     p = rec.planets[0]
     assert p.fate == Fate.DISRUPTED
     assert p.t_fate == pytest.approx(0.5 * period(2.0, m=MJ), abs=2e-3)
-    assert sim_run.sim.particles[0].m == pytest.approx(1.0 + MJ, rel=1e-15)   # mass went into the star
+    assert sim_run.sim.particles[0].m == pytest.approx(1.0 + MJ, rel=1e-15)  # mass went into the star
     assert abs(rec.energy_error) < 1e-8
 
 
@@ -171,7 +183,7 @@ def test_disruption_boundary_is_sharp(factor, fate):
     p = rec.planets[0]
     assert p.fate == fate
     if fate == Fate.SURVIVED:
-        assert p.tidal_candidate                                       # q < 0.05 AU flagged
+        assert p.tidal_candidate  # q < 0.05 AU flagged
         assert p.q_final == pytest.approx(factor * limit, rel=1e-3)
         assert abs(rec.energy_error) < 1e-10
 
@@ -185,23 +197,31 @@ def test_single_passage_inside_a_chunk_is_caught():
 def test_disruption_factor_comes_from_the_outcome_rules():
     # the same orbit survives when eta is lowered below q / r_t
     rt = float(tidal_disruption_radius(MJ, RJ, 1.0))
-    rec = integrate_initial(plunger(0.010), IntegrationSpec(end_time=0.75 * period(2.0, m=MJ)),
-                            OutcomeSpec(disruption_eta=0.9 * 0.010 / rt), reference=True)
+    rec = integrate_initial(
+        plunger(0.010),
+        IntegrationSpec(end_time=0.75 * period(2.0, m=MJ)),
+        OutcomeSpec(disruption_eta=0.9 * 0.010 / rt),
+        reference=True,
+    )
     assert rec.planets[0].fate == Fate.SURVIVED
 
 
 # --------------------------------------------------------------------------- books
 def test_energy_books_close_through_a_merger_and_an_ejection():
     # a 2:1 mass head-on merger at 5 AU and a hyperbolic planet leaving from 8 AU
-    initial = system([dict(m=2 * MJ, a=5.0, e=0.0), dict(m=MJ, a=5.0, e=0.0, inc=math.pi, M=-0.5),
-                      dict(m=MJ, a=-40.0, e=1.2, omega=2.0)])
-    sim_run = SystemRun(initial, IntegrationSpec(end_time=3000.0, ejection_distance=60.0), OutcomeSpec(),
-                         None, False)
+    initial = system(
+        [
+            dict(m=2 * MJ, a=5.0, e=0.0),
+            dict(m=MJ, a=5.0, e=0.0, inc=math.pi, M=-0.5),
+            dict(m=MJ, a=-40.0, e=1.2, omega=2.0),
+        ]
+    )
+    sim_run = SystemRun(initial, IntegrationSpec(end_time=3000.0, ejection_distance=60.0), OutcomeSpec(), None, False)
     e0 = sim_run.sim.energy()
     rec = sim_run.run()
     assert [p.fate for p in rec.planets] == [Fate.SURVIVED, Fate.MERGED, Fate.EJECTED]
     assert rec.end_reason == EndReason.ONE_PLANET
     raw = abs(sim_run.sim.energy() - e0) / abs(e0)
-    assert raw > 1e-3                                       # mergers and removals do change E
-    assert abs(rec.energy_error) < 1e-8                     # ... and the books account for it
+    assert raw > 1e-3  # mergers and removals do change E
+    assert abs(rec.energy_error) < 1e-8  # ... and the books account for it
     assert rec.angmom_error < 1e-8

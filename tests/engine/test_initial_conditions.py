@@ -8,11 +8,10 @@ import pytest
 import scipy.stats
 
 from scatter_pop.constants import MJUP_MSUN, R_JUP_AU
-from scatter_pop.errors import InputError
-from scatter_pop.engine.initial_conditions import (InitialSystem, draw_system, spaced_semi_major_axes,
-                                            system_seed)
-from scatter_pop.spec.reader import parse_spec
+from scatter_pop.engine.initial_conditions import InitialSystem, draw_system, spaced_semi_major_axes, system_seed
 from scatter_pop.engine.stability import hill_spacing
+from scatter_pop.errors import InputError
+from scatter_pop.spec.reader import parse_spec
 
 SPEC = """
 [run]
@@ -49,7 +48,7 @@ def test_draw_is_a_pure_function_of_spec_and_index():
 
 def test_seed_depends_on_run_seed_and_index_only():
     seeds = {system_seed(2024, i) for i in range(1000)}
-    assert len(seeds) == 1000                                   # no collisions among 1000 systems
+    assert len(seeds) == 1000  # no collisions among 1000 systems
     assert system_seed(2024, 5) == system_seed(2024, 5)
     assert system_seed(2025, 5) != system_seed(2024, 5)
     assert all(0 <= s < 2**64 for s in seeds)
@@ -94,13 +93,20 @@ def test_outer_planet_beyond_ejection_distance_is_a_user_error():
 
 
 def test_explicit_semi_major_axes_are_used_and_keep_other_draws():
-    text = SPEC.replace('a_inner = 2.0\nspacing = {distribution = "uniform", low = 2.0, high = 5.0}',
-                        "a = [1.0, 2.0, 4.0]")
+    text = SPEC.replace(
+        'a_inner = 2.0\nspacing = {distribution = "uniform", low = 2.0, high = 5.0}', "a = [1.0, 2.0, 4.0]"
+    )
     s1, s2 = draw_system(parse_spec(text), 3), draw_system(_spec(), 3)
     assert s1.a == (1.0, 2.0, 4.0)
     # the spacing block is drawn either way, so every later draw is unchanged
-    assert (s1.mass, s1.e, s1.inc, s1.omega, s1.node, s1.mean_anomaly) == \
-        (s2.mass, s2.e, s2.inc, s2.omega, s2.node, s2.mean_anomaly)
+    assert (s1.mass, s1.e, s1.inc, s1.omega, s1.node, s1.mean_anomaly) == (
+        s2.mass,
+        s2.e,
+        s2.inc,
+        s2.omega,
+        s2.node,
+        s2.mean_anomaly,
+    )
 
 
 def test_number_of_draws_does_not_depend_on_values():
@@ -108,8 +114,12 @@ def test_number_of_draws_does_not_depend_on_values():
     base = draw_system(_spec(), 11)
     other = draw_system(_spec(e_sigma=0.3, masses=(_spec().planets.masses[0].scaled(2.0),) * 3), 11)
     assert other.e != base.e and other.mass != base.mass
-    assert (other.inc, other.omega, other.node, other.mean_anomaly) == \
-        (base.inc, base.omega, base.node, base.mean_anomaly)
+    assert (other.inc, other.omega, other.node, other.mean_anomaly) == (
+        base.inc,
+        base.omega,
+        base.node,
+        base.mean_anomaly,
+    )
 
 
 def _many(spec, n=600):
@@ -133,7 +143,7 @@ def test_truncated_rayleigh_stays_below_one():
     assert e.max() < 1.0 and e.min() >= 0.0
     # truncated Rayleigh on [0, 1): CDF = (1 - exp(-e^2/2s^2)) / (1 - exp(-1/2s^2))
     norm = 1 - math.exp(-0.5 / 0.81)
-    assert scipy.stats.kstest(e, lambda x: (1 - np.exp(-x**2 / (2 * 0.81))) / norm).pvalue > 1e-3
+    assert scipy.stats.kstest(e, lambda x: (1 - np.exp(-(x**2) / (2 * 0.81))) / norm).pvalue > 1e-3
 
 
 def test_angles_uniform_and_masses_log_uniform():
@@ -148,8 +158,7 @@ def test_angles_uniform_and_masses_log_uniform():
 def test_radius_from_density_gives_jupiter_radius():
     # Jupiter: mass 1.898e27 kg, mean density 1.326 g/cm^3, volumetric mean radius 69 911 km
     # (NASA Jupiter fact sheet; from memory).  M_J here is the IAU 2015 value (1.8982e27 kg).
-    text = SPEC.replace('mass = {distribution = "log-uniform", low = 0.3, high = 10.0}',
-                        "mass = 1.0\ndensity = 1.326")
+    text = SPEC.replace('mass = {distribution = "log-uniform", low = 0.3, high = 10.0}', "mass = 1.0\ndensity = 1.326")
     s = draw_system(parse_spec(text), 0)
     assert s.radius[0] * 1.495978707e8 == pytest.approx(69911.0, rel=2e-3)
 
@@ -163,7 +172,7 @@ def test_fixed_radius_in_jupiter_radii():
 def test_star_and_units_passed_through():
     s = draw_system(_spec(), 0)
     assert s.star_mass == 1.1
-    assert s.star_radius == pytest.approx(1.2 * 6.957e8 / 1.495978707e11, rel=1e-12)   # IAU 2015 R_sun
+    assert s.star_radius == pytest.approx(1.2 * 6.957e8 / 1.495978707e11, rel=1e-12)  # IAU 2015 R_sun
     assert isinstance(s, InitialSystem) and s.count == 3
     # Kepler's third law, P = 2 pi sqrt(a^3 / G(M+m)): a massless body at 1 au around 1 M_sun has the
     # Gaussian year, 365.2568983 d (IAU value; from memory) = 1.0000189 Julian years.

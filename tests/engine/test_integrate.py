@@ -12,18 +12,17 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from tight_trio import tight_trio_spec
 
 from scatter_pop.constants import G_AU_YR_MSUN, MJUP_MSUN, R_JUP_AU, R_SUN_AU
-from scatter_pop.errors import InputError
 from scatter_pop.engine.initial_conditions import InitialSystem, draw_system, spaced_semi_major_axes, true_anomaly
 from scatter_pop.engine.integrate import integrate_initial, integrate_system
-from scatter_pop.engine.rebound_run import SystemRun
 from scatter_pop.engine.outcome import EndReason, Fate
-from scatter_pop.store.schema import records_to_dataset, validate_dataset
-from scatter_pop.spec.reader import IntegrationSpec, OutcomeSpec, load_spec
+from scatter_pop.engine.rebound_run import SystemRun
 from scatter_pop.engine.stability import hill_stable_circular, marchal_bozis_ratio, marchal_bozis_state_ratio
-
-from tight_trio import tight_trio_spec
+from scatter_pop.errors import InputError
+from scatter_pop.spec.reader import IntegrationSpec, OutcomeSpec, load_spec
+from scatter_pop.store.schema import records_to_dataset, validate_dataset
 
 MJ, RJ = MJUP_MSUN, R_JUP_AU
 TINY = Path(__file__).resolve().parents[1] / "data" / "tiny.toml"
@@ -32,8 +31,20 @@ TINY = Path(__file__).resolve().parents[1] / "data" / "tiny.toml"
 def pair(delta, phases=(0.0, 1.0), a1=1.0, e=(0.0, 0.0)):
     """Two Jupiters on circular coplanar orbits `delta` mutual Hill radii apart."""
     a = spaced_semi_major_axes(a1, [delta], [MJ, MJ], 1.0)
-    return InitialSystem(1.0, R_SUN_AU, (MJ, MJ), (RJ, RJ), a, tuple(e), (0.0, 0.0), (0.0, 0.0), (0.0, 0.0),
-                         tuple(phases), seed=5, index=0)
+    return InitialSystem(
+        1.0,
+        R_SUN_AU,
+        (MJ, MJ),
+        (RJ, RJ),
+        a,
+        tuple(e),
+        (0.0, 0.0),
+        (0.0, 0.0),
+        (0.0, 0.0),
+        tuple(phases),
+        seed=5,
+        index=0,
+    )
 
 
 def same(rec1, rec2):
@@ -53,7 +64,7 @@ def test_simulation_starts_from_astrocentric_elements():
         assert (o.a, o.e, o.inc) == pytest.approx((ini.a[k], ini.e[k], ini.inc[k]), rel=1e-12, abs=1e-14)
         assert math.remainder(o.M - ini.mean_anomaly[k], 2 * math.pi) == pytest.approx(0.0, abs=1e-10)
     com = sum(np.multiply(sim.particles[k].m, sim.particles[k].xyz) for k in range(sim.N))
-    assert np.linalg.norm(com) < 1e-15                      # centre-of-mass frame
+    assert np.linalg.norm(com) < 1e-15  # centre-of-mass frame
     assert sim.G == G_AU_YR_MSUN
 
 
@@ -116,7 +127,7 @@ def test_first_encounter_time_matches_dense_sampling_within_one_step(integrator,
     ini = pair(2.0, (0.0, 2.0))
     run = SystemRun(ini, IntegrationSpec(integrator=integrator, end_orbits=20.0), OutcomeSpec(), None, True)
     with pytest.warns(RuntimeWarning, match="function pointers"):
-        dense = run.sim.copy()                               # no resolve function: no contacts
+        dense = run.sim.copy()  # no resolve function: no contacts
     dense.collision = "none"
     rec = run.run()
     p_in = ini.inner_period()
@@ -131,13 +142,13 @@ def test_first_encounter_time_matches_dense_sampling_within_one_step(integrator,
             t_dense = t
             break
     steps_per_orbit = rec.steps / (rec.t_end / p_in)
-    assert min_steps < steps_per_orbit                       # IAS15 takes > 20 steps an orbit, BS ~10
+    assert min_steps < steps_per_orbit  # IAS15 takes > 20 steps an orbit, BS ~10
     assert abs(rec.t_first_encounter - t_dense) < 1.5 * p_in / steps_per_orbit + p_in / 1000
 
 
 # --------------------------------------------------------------------------- stopping rules
 def test_hill_stable_pair_stops_after_the_first_check():
-    ini = pair(9.5)                          # LHS/RHS = 1.11 for two Jupiters 9.5 R_H apart
+    ini = pair(9.5)  # LHS/RHS = 1.11 for two Jupiters 9.5 R_H apart
     assert marchal_bozis_ratio(1.0, MJ, MJ, ini.a[0], ini.a[1], 0, 0) > 1.1
     rec = integrate_initial(ini, IntegrationSpec(end_orbits=1e5, check_orbits=50), OutcomeSpec())
     assert rec.end_reason == EndReason.HILL_STABLE
@@ -147,11 +158,10 @@ def test_hill_stable_pair_stops_after_the_first_check():
 def test_pair_inside_the_margin_is_not_stopped():
     ini = pair(3.8)
     ratio = marchal_bozis_ratio(1.0, MJ, MJ, ini.a[0], ini.a[1], 0, 0)
-    assert 1.0 < ratio < IntegrationSpec().hill_margin        # stable, but not by the default margin
+    assert 1.0 < ratio < IntegrationSpec().hill_margin  # stable, but not by the default margin
     rec = integrate_initial(ini, IntegrationSpec(end_orbits=200, check_orbits=50), OutcomeSpec())
     assert rec.end_reason == EndReason.END_TIME
-    rec = integrate_initial(ini, IntegrationSpec(end_orbits=200, check_orbits=50, hill_margin=1.0),
-                            OutcomeSpec())
+    rec = integrate_initial(ini, IntegrationSpec(end_orbits=200, check_orbits=50, hill_margin=1.0), OutcomeSpec())
     assert rec.end_reason == EndReason.HILL_STABLE
 
 
@@ -159,29 +169,33 @@ def test_reference_mode_never_stops_early():
     ini = pair(6.0)
     rec = integrate_initial(ini, IntegrationSpec(end_orbits=200, check_orbits=50), OutcomeSpec(), reference=True)
     assert rec.end_reason == EndReason.END_TIME and rec.t_end >= 200 * ini.inner_period()
-    rec = integrate_initial(ini, IntegrationSpec(end_orbits=200, check_orbits=50, stop_when_settled=False),
-                            OutcomeSpec())
+    rec = integrate_initial(
+        ini, IntegrationSpec(end_orbits=200, check_orbits=50, stop_when_settled=False), OutcomeSpec()
+    )
     assert rec.end_reason == EndReason.END_TIME
 
 
 # --------------------------------------------------------------------------- integrators
-@pytest.mark.parametrize("integrator, tolerance", [("ias15", 1e-12), ("bs", 1e-8), ("trace", 1e-3),
-                                                   ("mercurius", 1e-2)])
+@pytest.mark.parametrize(
+    "integrator, tolerance", [("ias15", 1e-12), ("bs", 1e-8), ("trace", 1e-3), ("mercurius", 1e-2)]
+)
 def test_each_integrator_runs_a_scattering_system(integrator, tolerance):
     spec = load_spec(TINY)
     spec = replace(spec, integration=replace(spec.integration, integrator=integrator, end_time=300.0))
     rec = integrate_system(spec, 3)
     assert rec.integrator == integrator and rec.steps > 0 and rec.wall_seconds > 0
     assert abs(rec.energy_error) < tolerance
-    assert rec.t_first_encounter == pytest.approx(37.4, abs=1.0)    # same first encounter for all
+    assert rec.t_first_encounter == pytest.approx(37.4, abs=1.0)  # same first encounter for all
 
 
 def test_hybrid_step_follows_the_shortest_orbit():
     # dt = 2 pi sqrt(q^3 / (G M (1+e))) / steps_per_orbit of the most demanding orbit
-    ini = InitialSystem(1.0, R_SUN_AU, (MJ, MJ), (RJ, RJ), (1.0, 5.0), (0.0, 0.9), (0.0, 0.0), (0.0, 0.0),
-                        (0.0, 0.0), (0.0, math.pi))
-    run = SystemRun(ini, IntegrationSpec(integrator="trace", end_time=1.0, steps_per_orbit=50),
-                     OutcomeSpec(), None, True)
+    ini = InitialSystem(
+        1.0, R_SUN_AU, (MJ, MJ), (RJ, RJ), (1.0, 5.0), (0.0, 0.9), (0.0, 0.0), (0.0, 0.0), (0.0, 0.0), (0.0, math.pi)
+    )
+    run = SystemRun(
+        ini, IntegrationSpec(integrator="trace", end_time=1.0, steps_per_orbit=50), OutcomeSpec(), None, True
+    )
     q, e = 0.5, 0.9
     expected = 2 * math.pi * math.sqrt(q**3 / (G_AU_YR_MSUN * (1 + MJ) * (1 + e))) / 50
     assert run.sim.dt == pytest.approx(expected, rel=1e-6)
@@ -202,7 +216,7 @@ def test_capped_run_continued_from_checkpoint_equals_the_uncapped_run(tmp_path, 
     # REBOUND binary + ledger restart; chunk ends fixed in time, exact_finish_time = 0
     spec = tight_trio_spec(integrator, end_time, check)
     whole = integrate_system(spec, index)
-    assert whole.count(Fate.MERGED) >= 1                    # a merger happens on the way
+    assert whole.count(Fate.MERGED) >= 1  # a merger happens on the way
     capped = replace(spec, integration=replace(spec.integration, wall_seconds_max=1e-9))
     path = tmp_path / "system1.ckpt"
     segments = []
@@ -213,9 +227,9 @@ def test_capped_run_continued_from_checkpoint_equals_the_uncapped_run(tmp_path, 
         rec = integrate_system(capped, index, checkpoint_path=path)
     assert len(segments) >= 3
     merge_times = [p.t_fate for p in whole.planets if p.fate == Fate.MERGED]
-    assert any(segments[0] < t < segments[-1] for t in merge_times)   # the ledger crossed a checkpoint
+    assert any(segments[0] < t < segments[-1] for t in merge_times)  # the ledger crossed a checkpoint
     assert same(rec, whole)
-    assert not path.exists()                                # removed once the system finished
+    assert not path.exists()  # removed once the system finished
     assert rec.wall_seconds > 0
 
 
@@ -237,11 +251,11 @@ def test_continuation_does_not_trust_rebound_names_after_a_reload(tmp_path):
     rec = integrate_system(capped, 2, checkpoint_path=path)
     while rec.end_reason == EndReason.CAPPED:
         ledger, blob = read_checkpoint(path)
-        with warnings.catch_warnings():          # no function pointers are needed to rename
+        with warnings.catch_warnings():  # no function pointers are needed to rename
             warnings.filterwarnings("ignore", message="You have to reset function pointers")
             sim = rebound.Simulation(blob)
         names = [p.name for p in sim.particles]
-        for particle, name in zip(sim.particles, names[::-1]):   # what a corrupted reload looks like
+        for particle, name in zip(sim.particles, names[::-1]):  # what a corrupted reload looks like
             particle.name = name
         write_checkpoint(path, ledger, sim.__reduce__()[1][0])
         rec = integrate_system(capped, 2, checkpoint_path=path)

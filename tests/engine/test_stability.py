@@ -11,16 +11,18 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from scatter_pop.engine import stability as s
 from scatter_pop.constants import MJUP_MSUN, R_JUP_AU
+from scatter_pop.engine import stability as s
 
 # Saturn/Sun mass ratio 1/3497.9 (JPL planetary constants, GM_Saturn = 3.7931e16 m^3 s^-2; from memory).
 MSAT_MSUN = 1.0 / 3497.9
 
 
 # --------------------------------------------------------------------------- Gladman (1993)
-@pytest.mark.parametrize("mu, delta_a1, delta_hill", [
-    (1e-6, 0.030723, 3.464), (1e-5, 0.067360, 3.462), (1e-4, 0.150706, 3.456), (1e-3, 0.352233, 3.428)])
+@pytest.mark.parametrize(
+    "mu, delta_a1, delta_hill",
+    [(1e-6, 0.030723, 3.464), (1e-5, 0.067360, 3.462), (1e-4, 0.150706, 3.456), (1e-3, 0.352233, 3.428)],
+)
 def test_gladman_circular_critical_spacing(mu, delta_a1, delta_hill):
     # Gladman, B. 1993, Icarus 106, 247 (criterion after Marchal & Bozis 1982, Celest. Mech. 26, 311),
     # equal masses, circular coplanar orbits; derived values of REFERENCES.md.
@@ -70,8 +72,11 @@ def test_exact_critical_value_matches_marchal_bozis_series(mu1, mu2):
     # 1 + 3^(4/3) m1 m2 / (m3^(2/3) (m1+m2)^(4/3)) - m1 m2 (11 m1 + 7 m2) / (3 m3 (m1+m2)^2) + ...
     # (third term from memory).  Our value is exact (Euler collinear configuration); the series
     # must agree to its next order, O(mu^(4/3)).
-    series = 1 + 3 ** (4 / 3) * mu1 * mu2 / (mu1 + mu2) ** (4 / 3) \
+    series = (
+        1
+        + 3 ** (4 / 3) * mu1 * mu2 / (mu1 + mu2) ** (4 / 3)
         - mu1 * mu2 * (11 * mu1 + 7 * mu2) / (3 * (mu1 + mu2) ** 2)
+    )
     exact = s.euler_value(1.0, mu1, mu2)
     assert abs(exact - series) < 2 * (mu1 + mu2) ** (4 / 3)
     assert s.marchal_bozis_critical(1.0, mu1, mu2) >= exact
@@ -86,8 +91,7 @@ def test_euler_configuration_is_a_central_configuration(ma, mb, mc):
     m = np.array([ma, mb, mc])
     pos = np.array([0.0, 1.0, 1.0 + x])
     pos -= m @ pos / m.sum()
-    acc = [sum(m[j] * np.sign(pos[j] - pos[i]) / (pos[j] - pos[i]) ** 2 for j in range(3) if j != i)
-           for i in range(3)]
+    acc = [sum(m[j] * np.sign(pos[j] - pos[i]) / (pos[j] - pos[i]) ** 2 for j in range(3) if j != i) for i in range(3)]
     omega2 = -acc[0] / pos[0]
     for i in (1, 2):
         assert acc[i] == pytest.approx(-omega2 * pos[i], abs=1e-10 * abs(acc[0]))
@@ -119,13 +123,14 @@ def test_state_ratio_is_frame_independent_and_negative_when_unbound():
     rot = np.array([[0.0, -0.6, 0.8], [1.0, 0.0, 0.0], [0.0, 0.8, 0.6]])
     r1 = s.marchal_bozis_state_ratio(m, x @ rot.T + [3.0, -1.0, 2.0], v @ rot.T + [0.1, 0.2, -0.3], G)
     assert r1 == pytest.approx(r0, rel=1e-12)
-    v[2] *= 2.0                              # outer planet well beyond escape speed
+    v[2] *= 2.0  # outer planet well beyond escape speed
     assert s.marchal_bozis_state_ratio(m, x, v, G) < 0
 
 
 # --------------------------------------------------------------------------- Petrovich (2015)
-@pytest.mark.parametrize("mu, e, ratio", [(1e-4, 0.0, 1.2758), (1e-3, 0.0, 1.4378), (1e-2, 0.0, 1.8541),
-                                          (1e-3, 0.1, 1.7990)])
+@pytest.mark.parametrize(
+    "mu, e, ratio", [(1e-4, 0.0, 1.2758), (1e-3, 0.0, 1.4378), (1e-2, 0.0, 1.8541), (1e-3, 0.1, 1.7990)]
+)
 def test_petrovich_critical_ratio(mu, e, ratio):
     # Petrovich, C. 2015, ApJ 808, 120; derived critical a_out/a_in of REFERENCES.md.
     assert s.petrovich_2015_critical_ratio(mu, mu, e, e) == pytest.approx(ratio, abs=5e-5)
@@ -163,5 +168,6 @@ def test_mutual_hill_radius_and_spacing():
 def test_critical_delta_is_increasing_in_mass(mu1, mu2):
     # a heavier pair needs a wider gap (Gladman 1993)
     assert s.gladman_circular_critical_delta(mu1, mu2) < s.gladman_circular_critical_delta(1.5 * mu1, 1.5 * mu2)
-    assert s.marchal_bozis_ratio(1.0, mu1, mu2, 1.0, 1.0 + s.gladman_circular_critical_delta(mu1, mu2),
-                                 0.0, 0.0) == pytest.approx(1.0, abs=1e-10)
+    assert s.marchal_bozis_ratio(
+        1.0, mu1, mu2, 1.0, 1.0 + s.gladman_circular_critical_delta(mu1, mu2), 0.0, 0.0
+    ) == pytest.approx(1.0, abs=1e-10)

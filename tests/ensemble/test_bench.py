@@ -14,9 +14,9 @@ import pytest
 import scipy.stats
 
 from scatter_pop import cli
+from scatter_pop.engine.outcome import EndReason, Fate, PlanetRecord, SystemRecord
 from scatter_pop.ensemble.bench import bench_spec, format_table, make_paths, summarize
 from scatter_pop.errors import InputError
-from scatter_pop.engine.outcome import EndReason, Fate, PlanetRecord, SystemRecord
 from scatter_pop.spec.reader import INTEGRATORS
 
 
@@ -43,13 +43,16 @@ def test_paths_subset_keeps_the_reference_and_unknown_names_are_refused():
         make_paths(spec, ["whfast"])
 
 
-@pytest.mark.parametrize("argv, word", [
-    (["bench", "--quick", "--systems", "1"], "--systems 1"),
-    (["bench", "--quick", "--end-time", "-5"], "--end-time"),
-    (["bench", "--quick", "--paths", "rk4"], "--paths rk4"),
-    (["bench", "--quick", "--workers", "-1"], "--workers -1"),
-    (["bench", "--quick", "--json", "/no/such/folder/x.json"], "--json"),
-])
+@pytest.mark.parametrize(
+    "argv, word",
+    [
+        (["bench", "--quick", "--systems", "1"], "--systems 1"),
+        (["bench", "--quick", "--end-time", "-5"], "--end-time"),
+        (["bench", "--quick", "--paths", "rk4"], "--paths rk4"),
+        (["bench", "--quick", "--workers", "-1"], "--workers -1"),
+        (["bench", "--quick", "--json", "/no/such/folder/x.json"], "--json"),
+    ],
+)
 def test_user_errors_are_one_line_and_exit_2(argv, word, capsys):
     assert cli.main(argv) == 2
     err = capsys.readouterr().err.strip()
@@ -61,11 +64,30 @@ def _record(index, e_values, a_values, energy_error, fates=None):
     planets = []
     for k, (e, a) in enumerate(zip(e_values, a_values)):
         fate = fates[k] if fates else Fate.SURVIVED
-        planets.append(PlanetRecord(mass_initial=1e-3, a_initial=5.0, e_initial=0.01, inc_initial=0.0,
-                                    radius_initial=5e-4, mass_final=1e-3, a_final=a, e_final=e, inc_final=0.0,
-                                    q_final=a * (1 - e), radius_final=5e-4, fate=fate))
-    return SystemRecord(index=index, seed=index, planets=tuple(planets), t_end=1.0,
-                        end_reason=EndReason.END_TIME, energy_error=energy_error)
+        planets.append(
+            PlanetRecord(
+                mass_initial=1e-3,
+                a_initial=5.0,
+                e_initial=0.01,
+                inc_initial=0.0,
+                radius_initial=5e-4,
+                mass_final=1e-3,
+                a_final=a,
+                e_final=e,
+                inc_final=0.0,
+                q_final=a * (1 - e),
+                radius_final=5e-4,
+                fate=fate,
+            )
+        )
+    return SystemRecord(
+        index=index,
+        seed=index,
+        planets=tuple(planets),
+        t_end=1.0,
+        end_reason=EndReason.END_TIME,
+        energy_error=energy_error,
+    )
 
 
 def _fake_results(rng, n, shift=0.0, cpu=1.0, err=1e-12):
@@ -81,8 +103,8 @@ def test_summary_ratios_energy_and_pvalues_match_scipy():
     spec = bench_spec(40, 1000.0)
     rng = np.random.default_rng(7)
     ref = _fake_results(rng, 40, cpu=2.0)
-    same = [(r, 0.25, m) for r, _, m in ref]                       # same outcomes, 8x cheaper
-    other = _fake_results(rng, 40, shift=0.3, cpu=0.5, err=3e-7)   # other e distribution
+    same = [(r, 0.25, m) for r, _, m in ref]  # same outcomes, 8x cheaper
+    other = _fake_results(rng, 40, shift=0.3, cpu=0.5, err=3e-7)  # other e distribution
     s = summarize(spec, {"reference": ref, "same": same, "other": other}, permutations=200)
     assert s["reference"]["speedup"] == 1.0
     assert s["same"]["speedup"] == pytest.approx(8.0)
@@ -112,10 +134,10 @@ def test_summary_leaves_out_systems_above_the_energy_tolerance():
 
 def test_branching_fractions_count_planet_fates():
     spec = bench_spec(3, 1000.0)
-    recs = [(_record(0, [0.1, 0.5, 1.2], [3, 6, -40], 1e-12,
-                     [Fate.SURVIVED, Fate.MERGED, Fate.EJECTED]), 1.0, 1.0),
-            (_record(1, [0.1, 0.2, 0.3], [3, 6, 9], 1e-12,
-                     [Fate.SURVIVED, Fate.SURVIVED, Fate.HIT_STAR]), 1.0, 1.0)]
+    recs = [
+        (_record(0, [0.1, 0.5, 1.2], [3, 6, -40], 1e-12, [Fate.SURVIVED, Fate.MERGED, Fate.EJECTED]), 1.0, 1.0),
+        (_record(1, [0.1, 0.2, 0.3], [3, 6, 9], 1e-12, [Fate.SURVIVED, Fate.SURVIVED, Fate.HIT_STAR]), 1.0, 1.0),
+    ]
     f = summarize(spec, {"reference": recs}, permutations=10)["reference"]["fates"]
     assert f == {"survived": 0.5, "ejected": 1 / 6, "merged": 1 / 6, "hit_star": 1 / 6, "tidally_disrupted": 0.0}
 
@@ -127,8 +149,9 @@ def test_quick_benchmark_runs_every_path(tmp_path, capsys):
     assert cli.main(["bench", "--quick", "--json", str(out)]) == 0
     table = capsys.readouterr().out
     doc = json.loads(out.read_text())
-    labels = ["reference", "default"] + [n for n in INTEGRATORS if n != doc["paths"]["default"]["integration"]
-                                         ["integrator"]]
+    labels = ["reference", "default"] + [
+        n for n in INTEGRATORS if n != doc["paths"]["default"]["integration"]["integrator"]
+    ]
     assert sorted(doc["summary"]) == sorted(labels)
     for label in labels:
         assert label in table

@@ -28,12 +28,20 @@ import warnings
 
 import dask
 import pytest
-from hypothesis import given, settings, strategies as st
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
-from scatter_pop.ensemble.cluster import (ClusterConfig, WalltimeWarning, check_walltime, configure_dask,
-                                 connect, job_script, load_cluster_file)
-from scatter_pop.spec.cluster_table import apply_overrides, walltime_seconds, worker_lifetime
+from scatter_pop.ensemble.cluster import (
+    ClusterConfig,
+    WalltimeWarning,
+    check_walltime,
+    configure_dask,
+    connect,
+    job_script,
+    load_cluster_file,
+)
 from scatter_pop.errors import InputError
+from scatter_pop.spec.cluster_table import apply_overrides, walltime_seconds, worker_lifetime
 
 # -- validation: one line naming the key, the bad value and what is allowed -----------------
 
@@ -56,10 +64,13 @@ BAD_TABLES = [
     ({"kind": "slurm", "jobs": 2, "maximum_jobs": 3}, "cluster.jobs", "2", "not both"),
     ({"kind": "slurm", "minimum_jobs": 4, "maximum_jobs": 2}, "cluster.maximum_jobs", "2", ">= minimum_jobs (4)"),
     ({"kind": "slurm", "jobs": 0}, "cluster.jobs", "0", ">= 1"),
-    ({"kind": "slurm", "job_script_prologue": "module load x"}, "cluster.job_script_prologue",
-     '"module load x"', "list of single-line strings"),
-    ({"kind": "slurm", "job_script_prologue": ["a\nb"]}, "cluster.job_script_prologue", "['a\\nb']",
-     "single-line"),
+    (
+        {"kind": "slurm", "job_script_prologue": "module load x"},
+        "cluster.job_script_prologue",
+        '"module load x"',
+        "list of single-line strings",
+    ),
+    ({"kind": "slurm", "job_script_prologue": ["a\nb"]}, "cluster.job_script_prologue", "['a\\nb']", "single-line"),
     ({"kind": "slurm", "queue": ""}, "cluster.queue", '""', "partition"),
     ({"kind": "address"}, "cluster.address", "missing", "tcp://"),
     ({"kind": "address", "address": "my laptop"}, "cluster.address", '"my laptop"', "tcp://host:port"),
@@ -69,8 +80,7 @@ BAD_TABLES = [
 ]
 
 
-@pytest.mark.parametrize("table,key,value,allowed", BAD_TABLES,
-                         ids=[f"{t[1]}={t[2]}" for t in BAD_TABLES])
+@pytest.mark.parametrize("table,key,value,allowed", BAD_TABLES, ids=[f"{t[1]}={t[2]}" for t in BAD_TABLES])
 def test_bad_table_is_one_line_naming_key_value_and_allowed(table, key, value, allowed):
     with pytest.raises(InputError) as err:
         ClusterConfig.from_table(table)
@@ -102,12 +112,19 @@ def test_defaults_resolved_at_load_time():
 _names = st.text("abcdefghijklmnopqrstuvwxyz0123456789_-", min_size=1, max_size=12)
 _tables = st.fixed_dictionaries(
     {"kind": st.sampled_from(["slurm", "pbs"])},
-    optional={"queue": _names, "account": _names, "cores": st.integers(1, 256),
-              "memory": st.integers(1, 512).map(lambda n: f"{n}GB"),
-              "walltime": st.tuples(st.integers(0, 6), st.integers(0, 23), st.integers(2, 59))
-              .map(lambda t: f"{t[0]}-{t[1]:02d}:{t[2]:02d}:00"),
-              "jobs": st.integers(1, 100), "interface": _names,
-              "job_script_prologue": st.lists(_names.map(lambda s: f"export X={s}"), max_size=3)})
+    optional={
+        "queue": _names,
+        "account": _names,
+        "cores": st.integers(1, 256),
+        "memory": st.integers(1, 512).map(lambda n: f"{n}GB"),
+        "walltime": st.tuples(st.integers(0, 6), st.integers(0, 23), st.integers(2, 59)).map(
+            lambda t: f"{t[0]}-{t[1]:02d}:{t[2]:02d}:00"
+        ),
+        "jobs": st.integers(1, 100),
+        "interface": _names,
+        "job_script_prologue": st.lists(_names.map(lambda s: f"export X={s}"), max_size=3),
+    },
+)
 
 
 @given(_tables)
@@ -122,11 +139,14 @@ def test_cluster_file(tmp_path):
     path.write_text('kind = "slurm"\nqueue = "long"\ncores = 8\nwalltime = "2-00:00:00"\n')
     c = load_cluster_file(path)
     assert (c.kind, c.queue, c.cores, c.walltime) == ("slurm", "long", 8, "2-00:00:00")
-    path.write_text('[cluster]\nkind = "pbs"\nqueue = "workq"\n')   # a [cluster] header is fine
+    path.write_text('[cluster]\nkind = "pbs"\nqueue = "workq"\n')  # a [cluster] header is fine
     assert load_cluster_file(path).queue == "workq"
     path.write_text('kind = "slurm"\ncors = 8\n')
-    with pytest.raises(InputError, match=r"^allocation\.toml: cluster\.cors = 8: unknown key "
-                                         r"\(did you mean 'cores'\?\)"):
+    with pytest.raises(
+        InputError,
+        match=r"^allocation\.toml: cluster\.cors = 8: unknown key "
+        r"\(did you mean 'cores'\?\)",
+    ):
         load_cluster_file(path)
     path.write_text("kind = \n")
     with pytest.raises(InputError, match=r"allocation\.toml: not valid TOML"):
@@ -137,13 +157,15 @@ def test_cluster_file(tmp_path):
 
 def test_command_line_overrides():
     slurm = ClusterConfig.from_table({"kind": "slurm", "cores": 4, "jobs": 1})
-    c = apply_overrides(slurm, workers=10)           # 10 workers of 4 per job -> 3 jobs
+    c = apply_overrides(slurm, workers=10)  # 10 workers of 4 per job -> 3 jobs
     assert (c.minimum_jobs, c.maximum_jobs) == (3, 3)
     assert apply_overrides(ClusterConfig(), workers=3).workers == 3
     c = apply_overrides(slurm, scheduler="tcp://10.1.2.3:8786")
     assert c == ClusterConfig(kind="address", address="tcp://10.1.2.3:8786")
-    for kwargs, pattern in [({"workers": 0}, r"^--workers = 0: allowed: an integer >= 1$"),
-                            ({"scheduler": "nowhere"}, r'^--scheduler = "nowhere": allowed: ')]:
+    for kwargs, pattern in [
+        ({"workers": 0}, r"^--workers = 0: allowed: an integer >= 1$"),
+        ({"scheduler": "nowhere"}, r'^--scheduler = "nowhere": allowed: '),
+    ]:
         with pytest.raises(InputError, match=pattern):
             apply_overrides(slurm, **kwargs)
     with pytest.raises(InputError, match=r"^--workers = 2: applies to kind local, slurm or pbs"):
@@ -151,6 +173,7 @@ def test_command_line_overrides():
 
 
 # -- walltime arithmetic ------------------------------------------------------------------
+
 
 def test_walltime_parsing():
     # SLURM's time format days-hours:minutes:seconds (sbatch manual); PBS: hours beyond 24
@@ -173,48 +196,57 @@ def test_lifetime_matches_dask_jobqueue_documented_example():
 @given(st.integers(120, 30 * 86400))
 def test_workers_always_retire_before_the_walltime(walltime):
     lifetime, stagger = worker_lifetime(walltime)
-    assert stagger >= 0 and lifetime - stagger > 0            # earliest retirement after start
-    assert lifetime + stagger <= walltime - 60                 # latest retirement >= 1 min early
-    if walltime >= 3600:                                       # and not wastefully early
+    assert stagger >= 0 and lifetime - stagger > 0  # earliest retirement after start
+    assert lifetime + stagger <= walltime - 60  # latest retirement >= 1 min early
+    if walltime >= 3600:  # and not wastefully early
         assert lifetime - stagger >= 0.8 * walltime
 
 
 def test_walltime_against_longest_task():
     with warnings.catch_warnings():
         warnings.simplefilter("error")
-        check_walltime("01:00:00", 600.0)         # 10 min batches in 1 h jobs: fine, silent
+        check_walltime("01:00:00", 600.0)  # 10 min batches in 1 h jobs: fine, silent
         check_walltime("01:00:00", None)
     with pytest.warns(WalltimeWarning, match=r"cluster.walltime = \"01:00:00\".*advised"):
-        check_walltime("01:00:00", 1200.0)        # 20 min batches: allowed, but warned
+        check_walltime("01:00:00", 1200.0)  # 20 min batches: allowed, but warned
     with pytest.raises(InputError) as err:
-        check_walltime("00:10:00", 900.0)         # a 15 min batch cannot fit a 10 min job
+        check_walltime("00:10:00", 900.0)  # a 15 min batch cannot fit a 10 min job
     msg = str(err.value)
     assert msg.startswith('cluster.walltime = "00:10:00": too short') and "\n" not in msg
     least, advised = re.findall(r"\d\d:\d\d:00", msg.split("allowed:")[1])
     with pytest.warns(WalltimeWarning):
-        check_walltime(least, 900.0)              # the minimum it names is indeed enough
+        check_walltime(least, 900.0)  # the minimum it names is indeed enough
     with warnings.catch_warnings():
         warnings.simplefilter("error")
-        check_walltime(advised, 900.0)            # and the advised one draws no warning
+        check_walltime(advised, 900.0)  # and the advised one draws no warning
 
 
 # -- job scripts generated by dask-jobqueue --------------------------------------------------
 
+
 def _directives(script: str, prefix: str) -> list[str]:
-    return [ln[len(prefix):].strip() for ln in script.splitlines() if ln.startswith(prefix)]
+    return [ln[len(prefix) :].strip() for ln in script.splitlines() if ln.startswith(prefix)]
 
 
 def _worker_args(script: str) -> dict[str, str]:
     line = next(ln for ln in script.splitlines() if "distributed.cli.dask_worker" in ln)
     words = line.split()
-    return {w: (words[i + 1] if i + 1 < len(words) else "") for i, w in enumerate(words)
-            if w.startswith("--")}
+    return {w: (words[i + 1] if i + 1 < len(words) else "") for i, w in enumerate(words) if w.startswith("--")}
 
 
-SLURM_TABLE = {"kind": "slurm", "queue": "long", "account": "astro42", "cores": 4, "memory": "16GB",
-               "walltime": "1-12:00:00", "jobs": 2, "interface": "ib0",
-               "job_script_prologue": ["module load python/3.11", "export OMP_NUM_THREADS=1"],
-               "job_extra_directives": ["--qos=normal"], "python": "/opt/venv/bin/python"}
+SLURM_TABLE = {
+    "kind": "slurm",
+    "queue": "long",
+    "account": "astro42",
+    "cores": 4,
+    "memory": "16GB",
+    "walltime": "1-12:00:00",
+    "jobs": 2,
+    "interface": "ib0",
+    "job_script_prologue": ["module load python/3.11", "export OMP_NUM_THREADS=1"],
+    "job_extra_directives": ["--qos=normal"],
+    "python": "/opt/venv/bin/python",
+}
 
 
 def test_slurm_job_script(tmp_path):
@@ -239,14 +271,22 @@ def test_slurm_job_script(tmp_path):
 
 
 def test_pbs_job_script():
-    c = ClusterConfig.from_table({"kind": "pbs", "queue": "workq", "account": "astro42", "cores": 8,
-                                  "memory": "32GB", "walltime": "2-06:00:00",
-                                  "job_script_prologue": ["module load openmpi"]})
+    c = ClusterConfig.from_table(
+        {
+            "kind": "pbs",
+            "queue": "workq",
+            "account": "astro42",
+            "cores": 8,
+            "memory": "32GB",
+            "walltime": "2-06:00:00",
+            "job_script_prologue": ["module load openmpi"],
+        }
+    )
     script = job_script(c)
     d = _directives(script, "#PBS")
     assert "-q workq" in d and "-A astro42" in d and "-N scatter-pop" in d
-    assert "-l walltime=54:00:00" in d                       # PBS has no day field
-    assert "-l select=1:ncpus=8:mem=30GB" in d               # 32e9 B = 29.8 GiB, rounded up
+    assert "-l walltime=54:00:00" in d  # PBS has no day field
+    assert "-l select=1:ncpus=8:mem=30GB" in d  # 32e9 B = 29.8 GiB, rounded up
     assert "module load openmpi" in script.splitlines()
     assert _worker_args(script)["--nworkers"] == "8"
     c = ClusterConfig.from_table({"kind": "pbs", "resource_spec": "nodes=1:ppn=8"})
@@ -257,6 +297,7 @@ def test_job_script_defaults_use_this_interpreter_and_this_checkout():
     script = job_script(ClusterConfig.from_table({"kind": "slurm"}))
     assert f"{sys.executable} -m distributed.cli.dask_worker" in script
     import scatter_pop
+
     root = os.path.dirname(os.path.dirname(os.path.abspath(scatter_pop.__file__)))
     assert f"export PYTHONPATH={root}" in script
 
@@ -265,11 +306,11 @@ def test_job_script_refuses_what_it_cannot_do():
     with pytest.raises(InputError, match=r'^cluster.kind = "local": a job script exists only'):
         job_script(ClusterConfig())
     with pytest.raises(InputError, match=r'^cluster.walltime = "00:05:00": too short'):
-        job_script(ClusterConfig.from_table({"kind": "slurm", "walltime": "00:05:00"}),
-                   longest_task_seconds=600)
+        job_script(ClusterConfig.from_table({"kind": "slurm", "walltime": "00:05:00"}), longest_task_seconds=600)
 
 
 # -- local cluster ----------------------------------------------------------------------------
+
 
 @pytest.mark.slow
 def test_local_connect_runs_tasks_on_two_worker_processes():
@@ -281,8 +322,11 @@ def test_local_connect_runs_tasks_on_two_worker_processes():
         assert os.getpid() not in pids and 1 <= len(pids) <= 2
         assert sum(client.gather(client.map(lambda x: x * x, range(10)))) == 285
         saturation, failures = client.run_on_scheduler(
-            lambda: (dask.config.get("distributed.scheduler.worker-saturation"),
-                     dask.config.get("distributed.scheduler.allowed-failures")))
+            lambda: (
+                dask.config.get("distributed.scheduler.worker-saturation"),
+                dask.config.get("distributed.scheduler.allowed-failures"),
+            )
+        )
         assert (saturation, failures) == (1.0, 5)
     assert client.status == "closed"
 
@@ -291,22 +335,50 @@ def test_local_connect_runs_tasks_on_two_worker_processes():
 def test_address_kind_attaches_to_a_separately_started_scheduler(tmp_path):
     """As dask-mpi or a hand-started `dask scheduler` would provide: scheduler file + worker."""
     sched_file = tmp_path / "scheduler.json"
-    env = dict(os.environ, DASK_DISTRIBUTED__SCHEDULER__WORKER_SATURATION="1.0",
-               DASK_DISTRIBUTED__SCHEDULER__ALLOWED_FAILURES="5")
+    env = dict(
+        os.environ,
+        DASK_DISTRIBUTED__SCHEDULER__WORKER_SATURATION="1.0",
+        DASK_DISTRIBUTED__SCHEDULER__ALLOWED_FAILURES="5",
+    )
     py = sys.executable
-    sched = subprocess.Popen([py, "-m", "distributed.cli.dask_scheduler", "--no-dashboard",
-                              "--host", "127.0.0.1", "--port", "0",
-                              "--scheduler-file", str(sched_file)],
-                             env=env, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
-    worker = subprocess.Popen([py, "-m", "distributed.cli.dask_worker", "--nthreads", "1",
-                               "--no-dashboard", "--scheduler-file", str(sched_file)],
-                              env=env, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    sched = subprocess.Popen(
+        [
+            py,
+            "-m",
+            "distributed.cli.dask_scheduler",
+            "--no-dashboard",
+            "--host",
+            "127.0.0.1",
+            "--port",
+            "0",
+            "--scheduler-file",
+            str(sched_file),
+        ],
+        env=env,
+        stdout=subprocess.DEVNULL,
+        stderr=subprocess.DEVNULL,
+    )
+    worker = subprocess.Popen(
+        [
+            py,
+            "-m",
+            "distributed.cli.dask_worker",
+            "--nthreads",
+            "1",
+            "--no-dashboard",
+            "--scheduler-file",
+            str(sched_file),
+        ],
+        env=env,
+        stdout=subprocess.DEVNULL,
+        stderr=subprocess.DEVNULL,
+    )
     try:
         deadline = time.monotonic() + 30
         while not sched_file.exists() and time.monotonic() < deadline:
             time.sleep(0.1)
         with warnings.catch_warnings():
-            warnings.simplefilter("error")        # configured scheduler: no settings warning
+            warnings.simplefilter("error")  # configured scheduler: no settings warning
             with connect(ClusterConfig(kind="address", address=str(sched_file))) as client:
                 client.wait_for_workers(1, timeout=30)
                 assert client.submit(sum, [1, 2, 3]).result() == 6
@@ -326,15 +398,17 @@ def test_address_without_scheduler_is_an_input_error(tmp_path):
         with connect(ClusterConfig(kind="address", address=str(tmp_path / "missing.json"))):
             pass
     with dask.config.set({"distributed.comm.timeouts.connect": "1s"}):
-        with pytest.raises(InputError, match=r'^cluster.address = "tcp://127.0.0.1:9": no Dask '
-                                             r"scheduler answered"):
+        with pytest.raises(
+            InputError,
+            match=r'^cluster.address = "tcp://127.0.0.1:9": no Dask '
+            r"scheduler answered",
+        ):
             with connect(ClusterConfig(), scheduler="tcp://127.0.0.1:9"):
                 pass
 
 
 def test_configure_dask_sets_the_scheduler_options():
-    with dask.config.set({"distributed.scheduler.worker-saturation": 1.1,
-                          "distributed.scheduler.allowed-failures": 3}):
+    with dask.config.set({"distributed.scheduler.worker-saturation": 1.1, "distributed.scheduler.allowed-failures": 3}):
         configure_dask()
         assert dask.config.get("distributed.scheduler.worker-saturation") == 1.0
         assert dask.config.get("distributed.scheduler.allowed-failures") == 5
@@ -354,8 +428,9 @@ def test_sigterm_to_the_driver_closes_the_cluster(tmp_path):
         finally:
             print("closed", client.status, flush=True)
     """)
-    proc = subprocess.Popen([sys.executable, "-c", driver], stdout=subprocess.PIPE, text=True,
-                            stderr=subprocess.DEVNULL)
+    proc = subprocess.Popen(
+        [sys.executable, "-c", driver], stdout=subprocess.PIPE, text=True, stderr=subprocess.DEVNULL
+    )
     try:
         assert proc.stdout.readline().strip() == "ready"
         proc.send_signal(signal.SIGTERM)
@@ -371,6 +446,7 @@ def test_docs_document_every_cluster_key():
     """docs/cluster.md has a table row for every [cluster] key (common practice)."""
     from dataclasses import fields
     from pathlib import Path
+
     section = (Path(__file__).resolve().parents[2] / "docs" / "cluster.md").read_text()
     for f in fields(ClusterConfig):
         assert f"| `{f.name}` |" in section, f.name
@@ -381,7 +457,8 @@ def test_sigterm_with_a_hanging_clean_up_still_ends_the_process(tmp_path):
     from memory of the slurm.conf manual). If the clean-up after SIGTERM hangs, the driver must
     still end by itself, with exit status 143 and the resume hint."""
     script = tmp_path / "hang.py"
-    script.write_text(textwrap.dedent("""
+    script.write_text(
+        textwrap.dedent("""
         import sys, time
         from scatter_pop.ensemble import cluster, stop_signals
         stop_signals.TERM_GRACE_SECONDS = 1.0
@@ -391,9 +468,9 @@ def test_sigterm_with_a_hanging_clean_up_still_ends_the_process(tmp_path):
                 time.sleep(60)
             finally:
                 time.sleep(60)          # a clean-up that never finishes
-    """))
-    proc = subprocess.Popen([sys.executable, str(script)], stdout=subprocess.PIPE, stderr=subprocess.PIPE,
-                            text=True)
+    """)
+    )
+    proc = subprocess.Popen([sys.executable, str(script)], stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
     try:
         assert proc.stdout.readline().strip() == "ready"
         proc.send_signal(signal.SIGTERM)

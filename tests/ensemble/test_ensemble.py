@@ -13,15 +13,14 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from ensemble_helpers import assert_physics_equal, part_files, reference, spec_text
 
 import scatter_pop
-from scatter_pop.ensemble.cluster import ClusterConfig, connect
 from scatter_pop.engine.initial_conditions import draw_system
 from scatter_pop.engine.outcome import EndReason
-from scatter_pop.store.schema import validate_dataset
+from scatter_pop.ensemble.cluster import ClusterConfig, connect
 from scatter_pop.spec.reader import parse_spec
-
-from ensemble_helpers import assert_physics_equal, part_files, reference, spec_text
+from scatter_pop.store.schema import validate_dataset
 
 pytestmark = pytest.mark.slow
 
@@ -75,8 +74,14 @@ def test_growing_the_run_computes_only_the_new_systems(ref, tmp_path, client):
     scatter_pop.run_ensemble(small, out=out, client=client, batch_size=2, **QUIET)
     before = {p: (out / "parts" / p).stat().st_mtime_ns for p in part_files(out)}
     lines = []
-    ds = scatter_pop.run_ensemble(parse_spec(spec_text(systems=N, end_time=T_END)), out=out, client=client,
-                                  batch_size=2, progress_interval=60.0, log=lines.append)
+    ds = scatter_pop.run_ensemble(
+        parse_spec(spec_text(systems=N, end_time=T_END)),
+        out=out,
+        client=client,
+        batch_size=2,
+        progress_interval=60.0,
+        log=lines.append,
+    )
     assert any(f"5/{N} systems on disk; computing {N - 5} new systems" in line for line in lines)
     assert {p: (out / "parts" / p).stat().st_mtime_ns for p in before} == before
     assert_physics_equal(ds, ref)
@@ -104,8 +109,13 @@ def test_capped_systems_continue_from_checkpoints_bit_identically(tmp_path, clie
 
     # a larger cap in the same folder: capped systems continue to the end by themselves
     lines = []
-    final = scatter_pop.run_ensemble(parse_spec(spec_text(systems=6, end_time=T_END, extra=chunks)), out=out,
-                                     client=client, progress_interval=60.0, log=lines.append)
+    final = scatter_pop.run_ensemble(
+        parse_spec(spec_text(systems=6, end_time=T_END, extra=chunks)),
+        out=out,
+        client=client,
+        progress_interval=60.0,
+        log=lines.append,
+    )
     assert not (final["end_reason"].values == EndReason.CAPPED).any()
     assert list((out / "checkpoints").iterdir()) == []
     assert_physics_equal(final, uncapped)
@@ -122,30 +132,33 @@ def test_run_ensemble_accepts_a_spec_file_and_default_folder(tmp_path, client):
 def test_system_whose_integration_raises_is_isolated_then_retried(tmp_path, client):
     out = tmp_path / "run"
     scatter_pop.run_ensemble(parse_spec(spec_text(systems=2)), out=out, client=client, **QUIET)
-    (out / "checkpoints" / "system_00000002.bin").write_bytes(b"not a checkpoint")    # corrupt file
+    (out / "checkpoints" / "system_00000002.bin").write_bytes(b"not a checkpoint")  # corrupt file
     spec = parse_spec(spec_text(systems=4))
     lines = []
-    ds = scatter_pop.run_ensemble(spec, out=out, client=client, batch_size=2, progress_interval=60,
-                                  log=lines.append)
+    ds = scatter_pop.run_ensemble(spec, out=out, client=client, batch_size=2, progress_interval=60, log=lines.append)
     assert "systems 2-3: InputError: checkpoint" in "\n".join(lines)
-    assert any(line.startswith("system 2: InputError: checkpoint") and line.endswith(
-        "recorded as failed (traceback in failures.log)") for line in lines)
+    assert any(
+        line.startswith("system 2: InputError: checkpoint")
+        and line.endswith("recorded as failed (traceback in failures.log)")
+        for line in lines
+    )
     assert ds["end_reason"].values.tolist()[2] == EndReason.FAILED
     log = (out / "failures.log").read_text()
     assert log.startswith("--- system 2 (") and "Traceback" in log and "read_checkpoint" in log
     ref = reference(systems=4)
     assert_physics_equal(ds, ref, systems=[0, 1, 3])
-    (out / "checkpoints" / "system_00000002.bin").unlink()                          # the cause removed
+    (out / "checkpoints" / "system_00000002.bin").unlink()  # the cause removed
     again = scatter_pop.run_ensemble(spec, out=out, client=client, retry_failed=True, **QUIET)
     assert_physics_equal(again, ref)
 
 
 def test_many_small_parts_are_consolidated_without_changing_anything(ref, tmp_path, client, monkeypatch):
     import scatter_pop.ensemble.plan as plan
+
     monkeypatch.setattr(plan, "CONSOLIDATE_PARTS", 4)
     spec = parse_spec(spec_text(systems=N, end_time=T_END))
     ds = scatter_pop.run_ensemble(spec, out=tmp_path / "run", client=client, batch_size=1, **QUIET)
     files = part_files(tmp_path / "run")
-    assert len(files) < N // 2                      # 12 single-system batches, merged by fours
+    assert len(files) < N // 2  # 12 single-system batches, merged by fours
     assert_physics_equal(ds, ref)
     assert_physics_equal(scatter_pop.open_ensemble(tmp_path / "run", partial=True), ref)

@@ -19,25 +19,35 @@ import textwrap
 
 import pytest
 import xarray as xr
+from ensemble_helpers import (
+    SCATTER_POP,
+    assert_physics_equal,
+    kill_group,
+    part_files,
+    reference,
+    run_cli,
+    wait_for,
+    write_spec,
+)
 
 from scatter_pop.cli.status import status_lines
 from scatter_pop.store.run_folder import open_ensemble
 
-from ensemble_helpers import (SCATTER_POP, assert_physics_equal, kill_group, part_files, reference,
-                              run_cli, wait_for, write_spec)
-
 pytestmark = pytest.mark.slow
 
-N, T_END = 12, 2000.0          # as in test_resume.py (one reference for both): work left at the signal
+N, T_END = 12, 2000.0  # as in test_resume.py (one reference for both): work left at the signal
 STOPPED = "scatter-pop run: interrupted; finished parts are kept, rerun the same command to resume"
-STOPPED_AT_ONCE = ("scatter-pop run: interrupted again; stopped without finishing the clean-up "
-                   "(finished parts are kept, rerun the same command to resume)")
+STOPPED_AT_ONCE = (
+    "scatter-pop run: interrupted again; stopped without finishing the clean-up "
+    "(finished parts are kept, rerun the same command to resume)"
+)
 
 # Bash starts a background command with SIGINT ignored when job control is off, and Python keeps
 # an ignored SIGINT ignored (bash manual, "Signals"; Python documentation, signal module; both from
 # memory), as does scatter-pop run.  The run under test must see Ctrl-C whatever started pytest.
-_DEFAULT_SIGINT = ("import os, signal, sys; signal.signal(signal.SIGINT, signal.SIG_DFL); "
-                   "os.execv(sys.argv[1], sys.argv[1:])")
+_DEFAULT_SIGINT = (
+    "import os, signal, sys; signal.signal(signal.SIGINT, signal.SIG_DFL); os.execv(sys.argv[1], sys.argv[1:])"
+)
 
 
 @pytest.fixture(scope="module")
@@ -48,10 +58,26 @@ def ref():
 def _start_run(spec, out) -> subprocess.Popen:
     """``scatter-pop run`` in its own process group (as a terminal's foreground job) with SIGINT
     at its default."""
-    return subprocess.Popen([sys.executable, "-c", _DEFAULT_SIGINT, SCATTER_POP, "run", str(spec),
-                             "--out", str(out), "--workers", "2", "--batch-size", "1"],
-                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
-                            start_new_session=True)
+    return subprocess.Popen(
+        [
+            sys.executable,
+            "-c",
+            _DEFAULT_SIGINT,
+            SCATTER_POP,
+            "run",
+            str(spec),
+            "--out",
+            str(out),
+            "--workers",
+            "2",
+            "--batch-size",
+            "1",
+        ],
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        text=True,
+        start_new_session=True,
+    )
 
 
 def test_ctrl_c_stops_the_run_cleanly_and_it_resumes(tmp_path, ref):
@@ -63,12 +89,11 @@ def test_ctrl_c_stops_the_run_cleanly_and_it_resumes(tmp_path, ref):
     try:
         wait_for(lambda: part_files(out), 180, "a first part file")
         running = status_lines(out)
-        os.killpg(proc.pid, signal.SIGINT)            # what the terminal does on Ctrl-C
+        os.killpg(proc.pid, signal.SIGINT)  # what the terminal does on Ctrl-C
         _, err = proc.communicate(timeout=60)
     finally:
         kill_group(proc)
-    assert any(line.startswith("state        running since") and f"pid {proc.pid}" in line
-               for line in running)
+    assert any(line.startswith("state        running since") and f"pid {proc.pid}" in line for line in running)
     assert proc.returncode == 130, err
     assert err.splitlines() == [STOPPED], err
     kept = part_files(out)
@@ -109,11 +134,16 @@ def test_ctrl_c_twice_ends_the_run_at_once_and_keeps_finished_parts(tmp_path, re
 # instruction" (Python 3.11 documentation, signal module, "Note on Signal Handlers and
 # Exceptions"; quoted from memory), hence the deferral to safe points.
 
+
 def _run_script(tmp_path, text: str) -> subprocess.Popen:
     script = tmp_path / "driver.py"
     script.write_text(textwrap.dedent(text))
-    return subprocess.Popen([sys.executable, "-c", _DEFAULT_SIGINT, sys.executable, str(script)],
-                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    return subprocess.Popen(
+        [sys.executable, "-c", _DEFAULT_SIGINT, sys.executable, str(script)],
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        text=True,
+    )
 
 
 def test_ctrl_c_while_a_lock_is_held_waits_for_the_lock_to_be_released(tmp_path):
@@ -121,7 +151,9 @@ def test_ctrl_c_while_a_lock_is_held_waits_for_the_lock_to_be_released(tmp_path)
     written): the lock is released, then the command stops with 130 and its one line; a
     KeyboardInterrupt raised inside would leave the lock held and the clean-up, which needs it
     again, waiting forever."""
-    proc = _run_script(tmp_path, """
+    proc = _run_script(
+        tmp_path,
+        """
         import os, signal, threading, time
         from scatter_pop.ensemble import stop_signals
         with stop_signals.stop_signals("driver"), stop_signals.deferred_stop():
@@ -135,7 +167,8 @@ def test_ctrl_c_while_a_lock_is_held_waits_for_the_lock_to_be_released(tmp_path)
             print("still working", flush=True)
             stop_signals.check_terminated()
             print("not reached", flush=True)
-    """)
+    """,
+    )
     out, err = proc.communicate(timeout=60)
     assert proc.returncode == 130, err
     assert out.split() == ["released", "True", "still", "working"]
@@ -145,7 +178,9 @@ def test_ctrl_c_while_a_lock_is_held_waits_for_the_lock_to_be_released(tmp_path)
 def test_ctrl_c_again_during_a_hanging_clean_up_ends_the_process_at_once(tmp_path):
     """The second Ctrl-C ends the process with 130 although its clean-up would take 60 s and the
     grace period is 600 s: nothing else could end it within the 60 s this test waits."""
-    proc = _run_script(tmp_path, """
+    proc = _run_script(
+        tmp_path,
+        """
         import time
         from scatter_pop.ensemble import stop_signals
         stop_signals.TERM_GRACE_SECONDS = 600.0
@@ -156,7 +191,8 @@ def test_ctrl_c_again_during_a_hanging_clean_up_ends_the_process_at_once(tmp_pat
             finally:
                 print("cleaning up", flush=True)
                 time.sleep(60)          # a clean-up that does not finish in time
-    """)
+    """,
+    )
     try:
         assert proc.stdout.readline().strip() == "ready"
         proc.send_signal(signal.SIGINT)
@@ -167,8 +203,10 @@ def test_ctrl_c_again_during_a_hanging_clean_up_ends_the_process_at_once(tmp_pat
         proc.kill()
         proc.communicate()
     assert proc.returncode == 130
-    assert err == ("driver: interrupted again; stopped without finishing the clean-up (finished parts "
-                   "are kept, rerun the same command to resume)\n")
+    assert err == (
+        "driver: interrupted again; stopped without finishing the clean-up (finished parts "
+        "are kept, rerun the same command to resume)\n"
+    )
 
 
 def test_library_callers_keep_keyboardinterrupt_and_handlers_are_restored():
@@ -176,6 +214,7 @@ def test_library_callers_keep_keyboardinterrupt_and_handlers_are_restored():
     library code (its default SIGINT handler, Python documentation, signal module); a command's
     stop_signals gives both back when it ends without a signal."""
     from scatter_pop.ensemble import stop_signals
+
     sigint, sigterm = signal.getsignal(signal.SIGINT), signal.getsignal(signal.SIGTERM)
     with stop_signals.sigterm_unwinds():
         assert signal.getsignal(signal.SIGINT) is sigint
@@ -193,7 +232,9 @@ def test_a_local_worker_interrupted_by_ctrl_c_integrates_the_system_again(tmp_pa
     system again and the record equals the uninterrupted one."""
     spec = write_spec(tmp_path / "spec.toml", systems=2, end_time=5000.0)
     result = tmp_path / "records.nc"
-    proc = _run_script(tmp_path, f"""
+    proc = _run_script(
+        tmp_path,
+        f"""
         import os, signal, threading, time
         from scatter_pop.ensemble import stop_signals, worker as ensemble
         from scatter_pop.engine import integrate
@@ -217,7 +258,8 @@ def test_a_local_worker_interrupted_by_ctrl_c_integrates_the_system_again(tmp_pa
         task.join()
         print("integrations", len(calls), flush=True)
         records_to_dataset(done["records"], spec.planets.count).to_netcdf({str(result)!r})
-    """)
+    """,
+    )
     out, err = proc.communicate(timeout=120)
     assert proc.returncode == 0, err
     assert out.split() == ["integrations", "3"], (out, err)

@@ -17,16 +17,18 @@ import subprocess
 from pathlib import Path
 
 import pytest
+from slurm_harness import PARTITION, squeue_jobs, wait_for_no_jobs
 
 from scatter_pop.ensemble.cluster import connect, job_script
 from scatter_pop.spec.reader import parse_spec
-from slurm_harness import PARTITION, squeue_jobs, wait_for_no_jobs
 
-HERE = os.path.dirname(os.path.abspath(__file__))      # this file's folder (workers unpickle its tasks)
-TESTS = os.path.dirname(HERE)                         # tests/: data and helper modules
+HERE = os.path.dirname(os.path.abspath(__file__))  # this file's folder (workers unpickle its tasks)
+TESTS = os.path.dirname(HERE)  # tests/: data and helper modules
 TINY = Path(TESTS, "data", "tiny.toml").read_text()
 
-PBS_SPEC = TINY + """
+PBS_SPEC = (
+    TINY
+    + """
 [cluster]
 kind = "pbs"
 queue = "workq"
@@ -39,10 +41,11 @@ job_script_prologue = ["module load python/3.11", "source $HOME/venvs/sp/bin/act
 job_extra_directives = ["-m n"]
 python = "python3"
 """
+)
 
 
 def _directives(script: str) -> list[str]:
-    return [ln[len("#PBS"):].strip() for ln in script.splitlines() if ln.startswith("#PBS")]
+    return [ln[len("#PBS") :].strip() for ln in script.splitlines() if ln.startswith("#PBS")]
 
 
 def test_pbs_job_script_from_the_spec():
@@ -54,7 +57,7 @@ def test_pbs_job_script_from_the_spec():
     assert d[:3] == ["-N scatter-pop", "-q workq", "-A astro42"]
     # 12 GB = 1.2e10 B = 11.2 GiB -> dask-jobqueue rounds up to whole GiB and writes "GB"
     assert "-l select=1:ncpus=4:mem=12GB" in d
-    assert "-l walltime=30:00:00" in d                  # 1 day 6 h, as hours
+    assert "-l walltime=30:00:00" in d  # 1 day 6 h, as hours
     assert "-m n" in d
     lines = script.splitlines()
     worker = next(i for i, ln in enumerate(lines) if "distributed.cli.dask_worker" in ln)
@@ -71,6 +74,7 @@ def test_pbs_job_script_from_the_spec():
 def _job_id(i):
     import os
     import time
+
     time.sleep(0.2)
     return i, os.environ.get("SLURM_JOB_ID")
 
@@ -81,7 +85,9 @@ def test_workers_start_through_qsub_and_qdel_ends_them(slurm, tmp_path, monkeypa
     # The Torque wrappers write the job's .o/.e files into the submitting folder,
     # whatever the PBS -o/-e directives say: submit from tmp_path, not the checkout.
     monkeypatch.chdir(tmp_path)
-    text = TINY + f"""
+    text = (
+        TINY
+        + f"""
 [cluster]
 kind = "pbs"
 queue = "{PARTITION}"
@@ -90,9 +96,10 @@ walltime = "00:30:00"
 jobs = 1
 interface = "lo"
 dashboard_port = 0
-log_directory = "{tmp_path / 'logs'}"
+log_directory = "{tmp_path / "logs"}"
 job_script_prologue = ["export PYTHONPATH={HERE}:{TESTS}${{PYTHONPATH:+:$PYTHONPATH}}"]
 """
+    )
     config = parse_spec(text, source="pbs-local.toml").cluster
     with connect(config) as client:
         client.wait_for_workers(1, timeout=60)
@@ -100,7 +107,7 @@ job_script_prologue = ["export PYTHONPATH={HERE}:{TESTS}${{PYTHONPATH:+:$PYTHONP
         assert len(jobs) == 1 and jobs[0][1] == "scatter-pop" and jobs[0][2] == "RUNNING"
         job_id = jobs[0][0]
         qstat = subprocess.run(["qstat"], capture_output=True, text=True, timeout=20)
-        assert qstat.returncode == 0 and job_id in qstat.stdout   # the PBS view of the job
+        assert qstat.returncode == 0 and job_id in qstat.stdout  # the PBS view of the job
         results = client.gather(client.map(_job_id, range(4), pure=False))
-        assert results == [(i, job_id) for i in range(4)]         # run inside that job
-    assert wait_for_no_jobs(20.0) == []                           # qdel cancelled it
+        assert results == [(i, job_id) for i in range(4)]  # run inside that job
+    assert wait_for_no_jobs(20.0) == []  # qdel cancelled it

@@ -17,16 +17,23 @@ import sys
 import textwrap
 
 import pytest
+from ensemble_helpers import (
+    assert_physics_equal,
+    kill_group,
+    part_files,
+    reference,
+    run_cli,
+    start_cli,
+    wait_for,
+    write_spec,
+)
 
 from scatter_pop.cli.status import status_lines
 from scatter_pop.store.run_folder import open_ensemble
 
-from ensemble_helpers import (assert_physics_equal, kill_group, part_files, reference, run_cli,
-                              start_cli, wait_for, write_spec)
-
 pytestmark = pytest.mark.slow
 
-N, T_END = 12, 2000.0          # ~0.2 s per system: the driver is caught with work left
+N, T_END = 12, 2000.0  # ~0.2 s per system: the driver is caught with work left
 
 
 @pytest.fixture(scope="module")
@@ -40,15 +47,14 @@ def interrupted(tmp_path_factory):
     root = tmp_path_factory.mktemp("killed")
     spec = write_spec(root / "spec.toml", systems=N, end_time=T_END)
     out = root / "run"
-    proc = start_cli("run", spec, "--out", out, "--workers", "2", "--batch-size", "1",
-                     "--progress-every", "0.01")
+    proc = start_cli("run", spec, "--out", out, "--workers", "2", "--batch-size", "1", "--progress-every", "0.01")
     try:
         wait_for(lambda: len(part_files(out)) >= 3, 180, "three part files")
-        os.kill(proc.pid, signal.SIGKILL)             # the driver only: no chance to clean up
+        os.kill(proc.pid, signal.SIGKILL)  # the driver only: no chance to clean up
         proc.wait(timeout=30)
         parts = {p: (out / "parts" / p).stat().st_mtime_ns for p in part_files(out)}
     finally:
-        stdout, _ = kill_group(proc)                  # then the orphaned nannies and workers
+        stdout, _ = kill_group(proc)  # then the orphaned nannies and workers
     return spec, out, parts, stdout
 
 
@@ -64,9 +70,9 @@ def test_status_of_an_interrupted_run(interrupted):
 
 def test_rerun_after_driver_kill_finishes_and_equals_an_uninterrupted_run(interrupted, ref):
     spec, out, parts_at_kill, first_stdout = interrupted
-    on_disk = len(parts_at_kill)                      # batch size 1: one system per part
+    on_disk = len(parts_at_kill)  # batch size 1: one system per part
     reported = [int(m) for m in re.findall(rf"\] (\d+)/{N} systems", first_stdout)]
-    assert reported and max(reported) <= on_disk     # nothing reported finished was lost
+    assert reported and max(reported) <= on_disk  # nothing reported finished was lost
     (out / "parts" / "part_00000099_00000099.nc.tmp.4242").write_bytes(b"left by a killed writer")
 
     rerun = run_cli("run", spec, "--out", out, "--workers", "2", "--batch-size", "1")
@@ -87,8 +93,7 @@ def test_truncated_part_is_reported_and_recomputed(interrupted, ref):
         fh.truncate(victim.stat().st_size // 3)
     rerun = run_cli("run", spec, "--out", out, "--workers", "1")
     assert rerun.returncode == 0, rerun.stderr
-    assert re.search(r"part part_00000002_00000002\.nc: unreadable .*systems 2-2 will be recomputed",
-                     rerun.stdout)
+    assert re.search(r"part part_00000002_00000002\.nc: unreadable .*systems 2-2 will be recomputed", rerun.stdout)
     assert f"{N - 1}/{N} systems on disk; computing 1 new systems" in rerun.stdout
     assert len(list((out / "damaged").iterdir())) == 1
     assert_physics_equal(open_ensemble(out), ref)
@@ -113,7 +118,7 @@ def test_sigterm_stops_the_run_cleanly_and_it_resumes(tmp_path, ref):
     proc = start_cli("run", spec, "--out", out, "--workers", "2", "--batch-size", "1")
     try:
         wait_for(lambda: part_files(out), 180, "a first part file")
-        running = status_lines(out)               # status only reads: safe during a run
+        running = status_lines(out)  # status only reads: safe during a run
         os.kill(proc.pid, signal.SIGTERM)
         _, err = proc.communicate(timeout=60)
     finally:
@@ -123,12 +128,14 @@ def test_sigterm_stops_the_run_cleanly_and_it_resumes(tmp_path, ref):
     # Either the clean-up finished (the usual case) or it hung and the driver ended itself after
     # stop_signals.TERM_GRACE_SECONDS (seen about once in five CI runs on 2 loaded cores): both
     # keep every finished part and say how to resume; the rerun below checks the result.
-    assert ("terminated; finished parts are kept, rerun the same command to resume" in err
-            or ("clean-up after SIGTERM took over" in err and "rerun the same command to resume" in err)), err
+    assert "terminated; finished parts are kept, rerun the same command to resume" in err or (
+        "clean-up after SIGTERM took over" in err and "rerun the same command to resume" in err
+    ), err
     assert "Traceback" not in err
-    if "terminated;" in err:                      # the usual case: that line and nothing else
-        assert err.strip().splitlines() == ["scatter-pop run: terminated; finished parts are kept, "
-                                            "rerun the same command to resume"], err
+    if "terminated;" in err:  # the usual case: that line and nothing else
+        assert err.strip().splitlines() == [
+            "scatter-pop run: terminated; finished parts are kept, rerun the same command to resume"
+        ], err
     rerun = run_cli("run", spec, "--out", out, "--workers", "2")
     assert rerun.returncode == 0, rerun.stderr
     assert_physics_equal(open_ensemble(out), ref)
@@ -161,7 +168,9 @@ def test_sigterm_while_a_lock_is_held_waits_for_the_lock_to_be_released(tmp_path
     """SIGTERM between taking a lock and releasing it (as in xarray's CombinedLock while a part is
     written): the lock is released, then the run stops with 143; a raise inside would leave the lock
     held and the clean-up, which needs it again, waiting forever."""
-    proc = _run_script(tmp_path, """
+    proc = _run_script(
+        tmp_path,
+        """
         lock = threading.Lock()
         lock.acquire()
         os.kill(os.getpid(), signal.SIGTERM)
@@ -169,7 +178,8 @@ def test_sigterm_while_a_lock_is_held_waits_for_the_lock_to_be_released(tmp_path
         lock.release()
         print("released", lock.acquire(timeout=5), flush=True)
         lock.release()
-    """)
+    """,
+    )
     assert proc.returncode == 143, proc.stderr
     assert proc.stdout.split() == ["released", "True", "still", "working"]
     assert proc.stderr == ""
@@ -179,7 +189,9 @@ def test_sigterm_inside_a_garbage_collector_callback_is_not_lost(tmp_path):
     """An exception raised inside a gc callback is printed as "Exception ignored" and dropped
     (Python 3.11 documentation, gc.callbacks; from memory): a SIGTERM handled there must still stop
     the run, without a traceback."""
-    proc = _run_script(tmp_path, """
+    proc = _run_script(
+        tmp_path,
+        """
         def callback(phase, info):
             if phase == "start":
                 os.kill(os.getpid(), signal.SIGTERM)
@@ -187,7 +199,8 @@ def test_sigterm_inside_a_garbage_collector_callback_is_not_lost(tmp_path):
         gc.callbacks.append(callback)
         gc.collect()
         gc.callbacks.remove(callback)
-    """)
+    """,
+    )
     assert proc.returncode == 143, proc.stderr
     assert proc.stdout.split() == ["still", "working"]
     assert proc.stderr == ""

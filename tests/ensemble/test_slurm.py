@@ -12,7 +12,7 @@ What is checked, and against what:
 * an ensemble run through ``scatter-pop run`` on SLURM equals the same ensemble run on a local
   cluster, physics variables bit for bit (the reproducibility promise: each system draws from
   its own SeedSequence, so where it runs cannot matter).
-Whole file: well under 90 s on 2 cores (timings in DEVELOPERS.md).
+Whole file: well under 90 s on 2 cores (timings in docs/internals/cluster.md).
 """
 
 from __future__ import annotations
@@ -29,15 +29,15 @@ import numpy as np
 import pytest
 import xarray as xr
 from distributed import as_completed
+from slurm_harness import PARTITION, squeue_jobs, wait_for_no_jobs
 
 from scatter_pop.ensemble.cluster import ClusterConfig, connect, job_script
 from scatter_pop.errors import InputError
-from slurm_harness import PARTITION, squeue_jobs, wait_for_no_jobs
 
 pytestmark = [pytest.mark.slurm, pytest.mark.slow]
 
-HERE = os.path.dirname(os.path.abspath(__file__))      # this file's folder (workers unpickle its tasks)
-TESTS = os.path.dirname(HERE)                         # tests/: data and helper modules
+HERE = os.path.dirname(os.path.abspath(__file__))  # this file's folder (workers unpickle its tasks)
+TESTS = os.path.dirname(HERE)  # tests/: data and helper modules
 ROOT = os.path.dirname(TESTS)
 # the task functions below are pickled by reference to this module: the worker jobs import it
 # from the tests folder, which the job-script prologue puts on their path
@@ -45,9 +45,18 @@ PROLOGUE = [f"export PYTHONPATH={HERE}:{TESTS}${{PYTHONPATH:+:$PYTHONPATH}}"]
 
 
 def slurm_table(tmp_path, **overrides) -> dict:
-    table = {"kind": "slurm", "queue": PARTITION, "cores": 1, "memory": "1GB",
-             "walltime": "00:30:00", "jobs": 2, "interface": "lo", "dashboard_port": 0,
-             "log_directory": str(tmp_path / "logs"), "job_script_prologue": PROLOGUE}
+    table = {
+        "kind": "slurm",
+        "queue": PARTITION,
+        "cores": 1,
+        "memory": "1GB",
+        "walltime": "00:30:00",
+        "jobs": 2,
+        "interface": "lo",
+        "dashboard_port": 0,
+        "log_directory": str(tmp_path / "logs"),
+        "job_script_prologue": PROLOGUE,
+    }
     table.update(overrides)
     return table
 
@@ -56,7 +65,9 @@ def _where_am_i(i):
     """Task body: which SLURM job runs it, and which scatter_pop it imports (0.3 s each)."""
     import os
     import time
+
     import scatter_pop.constants as k
+
     time.sleep(0.3)
     return i, os.environ.get("SLURM_JOB_ID"), os.path.dirname(os.path.dirname(k.__file__))
 
@@ -65,6 +76,7 @@ def _slow(i, seconds, log):
     """Task body: record each execution (index, job) in a shared file, sleep, return i."""
     import os
     import time
+
     with open(log, "a") as f:
         f.write(f"{i} {os.environ.get('SLURM_JOB_ID')}\n")
     time.sleep(seconds)
@@ -74,6 +86,7 @@ def _slow(i, seconds, log):
 def test_unavailable_slurm_fails_in_ci_and_skips_only_outside(monkeypatch):
     """The harness's policy: never a silent skip when CI is set."""
     import slurm_harness
+
     monkeypatch.setenv("CI", "true")
     with pytest.raises(pytest.fail.Exception, match="real SLURM unavailable: no apt-get"):
         slurm_harness.unavailable("no apt-get")
@@ -83,15 +96,20 @@ def test_unavailable_slurm_fails_in_ci_and_skips_only_outside(monkeypatch):
 
 
 def test_job_script_accepted_by_sbatch(slurm, tmp_path):
-    config = ClusterConfig.from_table(slurm_table(tmp_path, account="astro42", cores=2,
-                                                  job_script_prologue=[*PROLOGUE, "export OMP_NUM_THREADS=1"],
-                                                  job_extra_directives=["--comment=scatter"]))
+    config = ClusterConfig.from_table(
+        slurm_table(
+            tmp_path,
+            account="astro42",
+            cores=2,
+            job_script_prologue=[*PROLOGUE, "export OMP_NUM_THREADS=1"],
+            job_extra_directives=["--comment=scatter"],
+        )
+    )
     script = tmp_path / "job.sh"
     script.write_text(job_script(config))
-    proc = subprocess.run(["sbatch", "--test-only", str(script)], capture_output=True, text=True,
-                          timeout=30)
+    proc = subprocess.run(["sbatch", "--test-only", str(script)], capture_output=True, text=True, timeout=30)
     assert proc.returncode == 0, proc.stderr
-    assert "to start at" in proc.stderr        # sbatch --test-only's answer for a valid job
+    assert "to start at" in proc.stderr  # sbatch --test-only's answer for a valid job
 
 
 def test_two_worker_jobs_run_tasks_and_close_leaves_no_job(slurm, tmp_path):
@@ -103,9 +121,9 @@ def test_two_worker_jobs_run_tasks_and_close_leaves_no_job(slurm, tmp_path):
         assert all(name == "scatter-pop" and state == "RUNNING" for name, state in jobs.values())
         results = client.gather(client.map(_where_am_i, range(8), pure=False))
         assert [r[0] for r in results] == list(range(8))
-        assert {r[1] for r in results} == set(jobs)            # tasks ran inside both jobs
-        assert {r[2] for r in results} == {ROOT}               # and imported this checkout
-    assert wait_for_no_jobs(20.0) == []                        # close() cancelled both jobs
+        assert {r[1] for r in results} == set(jobs)  # tasks ran inside both jobs
+        assert {r[2] for r in results} == {ROOT}  # and imported this checkout
+    assert wait_for_no_jobs(20.0) == []  # close() cancelled both jobs
 
 
 def test_cancelled_job_is_replaced_and_every_task_runs_once(slurm, tmp_path):
@@ -124,15 +142,15 @@ def test_cancelled_job_is_replaced_and_every_task_runs_once(slurm, tmp_path):
                 results.append(fut.result())
                 fut.release()
                 if len(results) == 2 and cancelled is None:
-                    cancelled = min(first_jobs)            # busy: 14 tasks are still queued
+                    cancelled = min(first_jobs)  # busy: 14 tasks are still queued
                     subprocess.run(["scancel", cancelled], check=True, timeout=20)
             later_jobs = {j for j, _, _ in squeue_jobs()}
-    assert sorted(i for i, _ in results) == list(range(n))      # each result exactly once
+    assert sorted(i for i, _ in results) == list(range(n))  # each result exactly once
     assert cancelled in first_jobs and cancelled not in later_jobs
     replacement = later_jobs - first_jobs
-    assert len(replacement) == 1                                # adapt() replaced the lost job
+    assert len(replacement) == 1  # adapt() replaced the lost job
     done_by = {job for _, job in results}
-    assert replacement <= done_by                               # and the new job did work
+    assert replacement <= done_by  # and the new job did work
     executions = [ln.split() for ln in log.read_text().splitlines()]
     assert len(executions) > n and any(j == cancelled for _, j in executions)
     assert wait_for_no_jobs(20.0) == []
@@ -166,8 +184,12 @@ def test_killed_driver_leaves_no_orphan_job(slurm, tmp_path, sig, deadline):
     so the workers end their jobs themselves once the scheduler is gone (death timeout 60 s;
     measured ~4 s, since the nanny sees the connection drop)."""
     table = slurm_table(tmp_path, jobs=1)
-    with subprocess.Popen([sys.executable, "-c", textwrap.dedent(DRIVER.format(table=table))],
-                          stdout=subprocess.PIPE, stderr=subprocess.DEVNULL, text=True) as proc:
+    with subprocess.Popen(
+        [sys.executable, "-c", textwrap.dedent(DRIVER.format(table=table))],
+        stdout=subprocess.PIPE,
+        stderr=subprocess.DEVNULL,
+        text=True,
+    ) as proc:
         try:
             assert proc.stdout.readline().strip() == "ready"
             assert len(squeue_jobs()) == 1
@@ -185,6 +207,7 @@ def test_killed_driver_leaves_no_orphan_job(slurm, tmp_path, sig, deadline):
 
 def _physics_equal(a, b) -> list[str]:
     from scatter_pop.store.schema import PHYSICS_VARIABLES
+
     differ = []
     for name in PHYSICS_VARIABLES:
         x, y = a[name].values, b[name].values
@@ -196,19 +219,18 @@ def _physics_equal(a, b) -> list[str]:
 def test_ensemble_on_slurm_equals_local_bit_for_bit(slurm, tmp_path):
     from scatter_pop.cli.main import main
     from scatter_pop.ensemble.driver import run_ensemble
+
     spec = os.path.join(ROOT, "tests", "data", "tiny.toml")
     cluster_file = tmp_path / "slurm.toml"
     # 1-day walltime: the driver checks it against its worst-case batch time (the wall cap)
-    lines = [f"{k} = {v!r}".replace("'", '"') for k, v in
-             slurm_table(tmp_path, walltime="1-00:00:00").items()]
+    lines = [f"{k} = {v!r}".replace("'", '"') for k, v in slurm_table(tmp_path, walltime="1-00:00:00").items()]
     cluster_file.write_text("\n".join(lines) + "\n")
     status = main(["run", spec, "--out", str(tmp_path / "on_slurm"), "--cluster", str(cluster_file)])
     assert status == 0
-    assert len(list((tmp_path / "logs").glob("scatter-pop-*.err"))) >= 1   # SLURM jobs did it
+    assert len(list((tmp_path / "logs").glob("scatter-pop-*.err"))) >= 1  # SLURM jobs did it
     assert wait_for_no_jobs(20.0) == []
     on_slurm = xr.load_dataset(tmp_path / "on_slurm" / "ensemble.nc")
-    local = run_ensemble(spec, out=tmp_path / "local", workers=2,
-                         cluster=ClusterConfig(dashboard_port=0))
+    local = run_ensemble(spec, out=tmp_path / "local", workers=2, cluster=ClusterConfig(dashboard_port=0))
     assert on_slurm.sizes["system"] == local.sizes["system"] == 4
     assert np.array_equal(on_slurm["system"].values, local["system"].values)
     assert _physics_equal(on_slurm, local) == []

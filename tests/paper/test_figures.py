@@ -9,14 +9,13 @@ import numpy as np
 import pytest
 import scipy.stats
 from PIL import Image
-
 from records import planet, system, write_run
+
 from scatter_pop import cli
 from scatter_pop.engine.outcome import EndReason, Fate
 
 OBSERVED = "tests/data/observed_rv_giants.csv"
-FIGURES = ("e_histogram_by_branch", "e_cdf", "a_e_plane", "branching_ratios", "instability_times",
-           "e_vs_mass_ratio")
+FIGURES = ("e_histogram_by_branch", "e_cdf", "a_e_plane", "branching_ratios", "instability_times", "e_vs_mass_ratio")
 KINDS = ("none", "ejection", "merger", "star")
 
 
@@ -34,16 +33,30 @@ def _two_planet_run():
             expected[kind] += [(e1, a1, min(m1, m2) / max(m1, m2)), (e2, a2, min(m1, m2) / max(m1, m2))]
         else:
             fate = {"ejection": Fate.EJECTED, "merger": Fate.MERGED, "star": Fate.HIT_STAR}[kind]
-            ps = [planet(m1, a1, e1, a_initial=3.0), planet(m2, -30.0 if kind == "ejection" else 1.0,
-                                                  1.2 if kind == "ejection" else 0.9, a_initial=4.0,
-                                                  fate=fate)]
+            ps = [
+                planet(m1, a1, e1, a_initial=3.0),
+                planet(
+                    m2,
+                    -30.0 if kind == "ejection" else 1.0,
+                    1.2 if kind == "ejection" else 0.9,
+                    a_initial=4.0,
+                    fate=fate,
+                ),
+            ]
             expected[kind].append((e1, a1, min(m1, m2) / max(m1, m2)))
         t = math.nan if kind == "none" else 10.0 ** (2 + 0.05 * i)
         t_enc.append(t)
-        recs.append(system(i, ps, t_enc=t, reason=EndReason.HILL_STABLE if kind == "none" else
-                           EndReason.ONE_PLANET))
-    recs.append(system(40, [planet(1.0, 2.0, 0.99, a_initial=3.0), planet(1.0, 3.0, 0.5, a_initial=4.0)], reason=EndReason.FAILED))
-    recs.append(system(41, [planet(1.0, 2.0, 0.98, a_initial=3.0), planet(1.0, 3.0, 0.5, a_initial=4.0)], reason=EndReason.CAPPED))
+        recs.append(system(i, ps, t_enc=t, reason=EndReason.HILL_STABLE if kind == "none" else EndReason.ONE_PLANET))
+    recs.append(
+        system(
+            40, [planet(1.0, 2.0, 0.99, a_initial=3.0), planet(1.0, 3.0, 0.5, a_initial=4.0)], reason=EndReason.FAILED
+        )
+    )
+    recs.append(
+        system(
+            41, [planet(1.0, 2.0, 0.98, a_initial=3.0), planet(1.0, 3.0, 0.5, a_initial=4.0)], reason=EndReason.CAPPED
+        )
+    )
     return recs, expected, t_enc
 
 
@@ -53,8 +66,17 @@ def _three_planet_run():
         e = 0.05 + 0.03 * i
         # an ejection and a merger: "several"; every fifth system only ejections
         second = Fate.MERGED if i % 5 else Fate.EJECTED
-        recs.append(system(i, [planet(1.0, 3.0 + 0.1 * i, e, a_initial=3.0), planet(1.0, -40.0, 1.5, a_initial=4.0, fate=Fate.EJECTED),
-                               planet(0.5, 4.0, 0.3, a_initial=5.0, fate=second)], t_enc=50.0 + i))
+        recs.append(
+            system(
+                i,
+                [
+                    planet(1.0, 3.0 + 0.1 * i, e, a_initial=3.0),
+                    planet(1.0, -40.0, 1.5, a_initial=4.0, fate=Fate.EJECTED),
+                    planet(0.5, 4.0, 0.3, a_initial=5.0, fate=second),
+                ],
+                t_enc=50.0 + i,
+            )
+        )
         e_all.append(e)
     return recs, e_all
 
@@ -77,9 +99,25 @@ def figure_dir(tmp_path_factory):
     a = write_run(base / "two", recs2, 2)
     b = write_run(base / "three", recs3, 3)
     out = base / "out"
-    code = cli.main(["figures", str(a), str(b), "--observed", OBSERVED, "--target", "0.9,0.02,9,1.5",
-                     "--target-name", "invented b", "--format", "pdf,png", "--out", str(out),
-                     "--permutations", "200"])
+    code = cli.main(
+        [
+            "figures",
+            str(a),
+            str(b),
+            "--observed",
+            OBSERVED,
+            "--target",
+            "0.9,0.02,9,1.5",
+            "--target-name",
+            "invented b",
+            "--format",
+            "pdf,png",
+            "--out",
+            str(out),
+            "--permutations",
+            "200",
+        ]
+    )
     assert code == 0
     return out
 
@@ -88,8 +126,8 @@ def figure_dir(tmp_path_factory):
 def test_each_figure_is_a_valid_pdf_and_png(figure_dir, name):
     pdf = (figure_dir / f"{name}.pdf").read_bytes()
     assert pdf.startswith(b"%PDF-") and b"%%EOF" in pdf[-1024:]
-    assert b"/Subtype /Image" not in pdf          # vector: no embedded raster
-    assert b"/FontFile2" in pdf                   # TrueType fonts embedded (pdf.fonttype 42)
+    assert b"/Subtype /Image" not in pdf  # vector: no embedded raster
+    assert b"/FontFile2" in pdf  # TrueType fonts embedded (pdf.fonttype 42)
     png = figure_dir / f"{name}.png"
     assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     assert matplotlib.image.imread(png).ndim == 3
@@ -117,7 +155,7 @@ def test_histogram_counts_equal_direct_counts(figure_dir):
     _, e3 = _three_planet_run()
     several = [r for r in rows if r["ensemble"] == "three" and r["branch"] == "several"]
     ej_only = [r for r in rows if r["ensemble"] == "three" and r["branch"] == "ejection"]
-    e_several = [e for i, e in enumerate(e3) if i % 5]          # only the innermost planet survives
+    e_several = [e for i, e in enumerate(e3) if i % 5]  # only the innermost planet survives
     e_ej = [e for i, e in enumerate(e3) if i % 5 == 0]
     assert _col(several, "count", int).tolist() == np.histogram(e_several, bins)[0].tolist()
     assert _col(ej_only, "count", int).tolist() == np.histogram(e_ej, bins)[0].tolist()
@@ -143,7 +181,7 @@ def test_cdf_values_and_statistics(figure_dir):
     ks = scipy.stats.ks_2samp(sim, obs)
     assert float(stats["two"]["ks_d"]) == pytest.approx(ks.statistic, rel=1e-12)
     assert float(stats["two"]["ks_p"]) == pytest.approx(ks.pvalue, rel=1e-9)
-    assert int(stats["two"]["n_obs"]) == obs.size == 602      # REFERENCES.md: 602 rows with e > 0
+    assert int(stats["two"]["n_obs"]) == obs.size == 602  # REFERENCES.md: 602 rows with e > 0
 
 
 def test_branching_ratios_equal_counts_and_binomial_intervals(figure_dir):
@@ -170,7 +208,7 @@ def test_instability_cdf_and_a_e_and_mass_ratio(figure_dir):
     assert np.allclose(sorted(zip(_col(ae, "a_au"), _col(ae, "e"))), direct, rtol=1e-12, atol=0)
     lines = _read(figure_dir / "a_e_plane_lines.csv")
     q, a, e = _col(lines, "q_au"), _col(lines, "a_au"), _col(lines, "e")
-    assert np.allclose(a * (1 - e), q)                          # pericentre q = a(1 - e)
+    assert np.allclose(a * (1 - e), q)  # pericentre q = a(1 - e)
     target = _read(figure_dir / "a_e_plane_target.csv")[0]
     assert (target["name"], float(target["a_au"]), float(target["e_err"])) == ("invented b", 9.0, 0.02)
     mr = [r for r in _read(figure_dir / "e_vs_mass_ratio.csv") if r["ensemble"] == "two"]
@@ -186,28 +224,35 @@ def test_single_column_width(tmp_path):
         with Image.open(tmp_path / "f" / f"{name}.png") as im:
             assert im.size[0] / 300 == pytest.approx(3.35, abs=2 / 300)
     assert (tmp_path / "f" / "outcomes_table.tex").is_file()
-    assert not (tmp_path / "f" / "e_cdf_stats.csv").exists()     # no catalogue, no statistics
+    assert not (tmp_path / "f" / "e_cdf_stats.csv").exists()  # no catalogue, no statistics
 
 
-@pytest.mark.parametrize("extra, flag", [
-    (["--format", "gif"], "--format"), (["--target", "1.2,0.1,9,1"], "--target"),
-    (["--target", "0.9,0.1,9"], "--target"), (["--target", "0.9,-0.1,9,1"], "--target"),
-    (["--labels", "a,b"], "--labels"), (["--a-range", "5,1"], "--a-range"),
-    (["--observed", "tests/data/nowhere.csv"], "nowhere"),
-])
+@pytest.mark.parametrize(
+    "extra, flag",
+    [
+        (["--format", "gif"], "--format"),
+        (["--target", "1.2,0.1,9,1"], "--target"),
+        (["--target", "0.9,0.1,9"], "--target"),
+        (["--target", "0.9,-0.1,9,1"], "--target"),
+        (["--labels", "a,b"], "--labels"),
+        (["--a-range", "5,1"], "--a-range"),
+        (["--observed", "tests/data/nowhere.csv"], "nowhere"),
+    ],
+)
 def test_figures_bad_flags(tmp_path, capsys, extra, flag):
     recs, _, _ = _two_planet_run()
     run = write_run(tmp_path / "one", recs, 2)
     code = cli.main(["figures", str(run), "--out", str(tmp_path / "f"), *extra])
     err = capsys.readouterr().err
     assert code == 2 and len(err.strip().splitlines()) == 1 and flag in err
-    assert not (tmp_path / "f").exists()                         # nothing written
+    assert not (tmp_path / "f").exists()  # nothing written
 
 
 def test_paper_figure_script_builds_figures_and_tables(tmp_path):
     # analysis/paper_figures.py: two runs -> figure set, outcome table, comparison tables
     import importlib.util
     from pathlib import Path
+
     path = Path(__file__).resolve().parents[2] / "analysis" / "paper_figures.py"
     spec = importlib.util.spec_from_file_location("paper_figures", path)
     module = importlib.util.module_from_spec(spec)
@@ -217,8 +262,23 @@ def test_paper_figure_script_builds_figures_and_tables(tmp_path):
     a = write_run(tmp_path / "two", recs2, 2)
     b = write_run(tmp_path / "three", recs3, 3)
     out = tmp_path / "paper"
-    assert module.main([str(a), str(b), "--labels", "two giants,three giants", "--out", str(out),
-                        "--draws", "5", "--permutations", "50"]) == 0
+    assert (
+        module.main(
+            [
+                str(a),
+                str(b),
+                "--labels",
+                "two giants,three giants",
+                "--out",
+                str(out),
+                "--draws",
+                "5",
+                "--permutations",
+                "50",
+            ]
+        )
+        == 0
+    )
     for name in FIGURES:
         assert (out / f"{name}.pdf").read_bytes().startswith(b"%PDF-")
     tex = (out / "outcomes_table.tex").read_text()
@@ -232,8 +292,11 @@ def test_figure_set_of_a_run_without_usable_systems(tmp_path):
     # every system failed: the figures are drawn empty (no crash, no legend warnings) and the
     # CSVs hold no rows of survivors
     import warnings
-    recs = [system(i, [planet(1.0, 2.0, 0.5, a_initial=3.0), planet(1.0, 3.0, 0.5, a_initial=4.0)], reason=EndReason.FAILED)
-            for i in range(3)]
+
+    recs = [
+        system(i, [planet(1.0, 2.0, 0.5, a_initial=3.0), planet(1.0, 3.0, 0.5, a_initial=4.0)], reason=EndReason.FAILED)
+        for i in range(3)
+    ]
     run = write_run(tmp_path / "failed", recs, 2)
     with warnings.catch_warnings():
         warnings.simplefilter("error")

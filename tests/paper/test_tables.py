@@ -5,21 +5,26 @@ import re
 
 import numpy as np
 import scipy.stats
-
 from records import dataset, planet, system
-from scatter_pop.paper.figure_data import branching_table, comparison_stats_table
+
 from scatter_pop.engine.outcome import Fate
-from scatter_pop.survey.statistics import two_sample
+from scatter_pop.paper.figure_data import branching_table, comparison_stats_table
 from scatter_pop.paper.latex_tables import latex_escape, latex_percent, latex_pvalue, latex_table
+from scatter_pop.survey.statistics import two_sample
 
 
 def _runs():
     def run(n_ej, n_none):
-        recs = [system(i, [planet(1.0, 2.0, 0.6, a_initial=3.0), planet(1.0, -20.0, 1.2, a_initial=4.0, fate=Fate.EJECTED)])
-                for i in range(n_ej)]
-        recs += [system(n_ej + i, [planet(1.0, 3.0, 0.1, a_initial=3.0), planet(1.0, 6.0, 0.05, a_initial=4.0)])
-                 for i in range(n_none)]
+        recs = [
+            system(i, [planet(1.0, 2.0, 0.6, a_initial=3.0), planet(1.0, -20.0, 1.2, a_initial=4.0, fate=Fate.EJECTED)])
+            for i in range(n_ej)
+        ]
+        recs += [
+            system(n_ej + i, [planet(1.0, 3.0, 0.1, a_initial=3.0), planet(1.0, 6.0, 0.05, a_initial=4.0)])
+            for i in range(n_none)
+        ]
         return dataset(recs, 2)
+
     return [("2_planets & co", run(30, 10)), ("equal%masses", run(5, 45))]
 
 
@@ -52,9 +57,11 @@ def test_booktabs_structure_and_branch_percentages():
 def test_comparison_columns_come_from_the_two_sample_test():
     runs = _runs()
     rng = np.random.default_rng(4)
-    observed = rng.beta(0.867, 3.03, 300)        # Kipping 2013 Beta law, as a stand-in sample
-    tests = [(label, two_sample(ds["e_final"].values[ds["fate"].values == 0], observed, permutations=99,
-                                rng=1)) for label, ds in runs]
+    observed = rng.beta(0.867, 3.03, 300)  # Kipping 2013 Beta law, as a stand-in sample
+    tests = [
+        (label, two_sample(ds["e_final"].values[ds["fate"].values == 0], observed, permutations=99, rng=1))
+        for label, ds in runs
+    ]
     tex = latex_table(branching_table(runs), comparison_stats_table(tests))
     rows = _rows(tex)
     for row, (_, t) in zip(rows, tests):

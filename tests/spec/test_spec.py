@@ -87,14 +87,21 @@ def test_digest_ignores_what_does_not_change_a_system():
     assert a.digest() != c.digest() and a.digest() != d.digest()
 
 
-@pytest.mark.parametrize("kind,extra", [("uniform", ""), ("log-uniform", ""), ("power-law", ", index = -1.3"),
-                                        ("power-law", ", index = -1.0")])
+@pytest.mark.parametrize(
+    "kind,extra",
+    [("uniform", ""), ("log-uniform", ""), ("power-law", ", index = -1.3"), ("power-law", ", index = -1.0")],
+)
 def test_distributions_match_their_laws(kind, extra):
     """Draws follow the stated law: KS against scipy.stats (reference library)."""
     from scipy import stats
 
-    spec = parse_spec(edit(GOOD, 'mass = {distribution = "log-uniform", low = 0.5, high = 5.0}',
-                           f'mass = {{distribution = "{kind}", low = 0.5, high = 5.0{extra}}}'))
+    spec = parse_spec(
+        edit(
+            GOOD,
+            'mass = {distribution = "log-uniform", low = 0.5, high = 5.0}',
+            f'mass = {{distribution = "{kind}", low = 0.5, high = 5.0{extra}}}',
+        )
+    )
     d = spec.planets.masses[0]
     rng = np.random.default_rng(1)
     x = np.array([d.draw(rng) for _ in range(4000)])
@@ -125,10 +132,16 @@ BAD = [
     ("count < 2", ("count = 3", "count = 1"), "planets.count"),
     ("count not integer", ("count = 3", "count = 2.5"), "planets.count"),
     ("count string", ("count = 3", 'count = "three"'), "planets.count"),
-    ("spacing <= 0", ("spacing = {distribution = \"uniform\", low = 3.0, high = 5.0}", "spacing = 0.0"),
-     "planets.spacing"),
-    ("spacing log-uniform", ('spacing = {distribution = "uniform"', 'spacing = {distribution = "log-uniform"'),
-     "planets.spacing.distribution"),
+    (
+        "spacing <= 0",
+        ('spacing = {distribution = "uniform", low = 3.0, high = 5.0}', "spacing = 0.0"),
+        "planets.spacing",
+    ),
+    (
+        "spacing log-uniform",
+        ('spacing = {distribution = "uniform"', 'spacing = {distribution = "log-uniform"'),
+        "planets.spacing.distribution",
+    ),
     ("e_sigma >= 1", ("e_sigma = 0.02", "e_sigma = 1.0"), "planets.e_sigma"),
     ("e_sigma < 0", ("e_sigma = 0.02", "e_sigma = -0.1"), "planets.e_sigma"),
     ("inc_sigma < 0", ("inc_sigma = 1.0", "inc_sigma = -1.0"), "planets.inc_sigma"),
@@ -144,15 +157,27 @@ BAD = [
     ("density and radius", ("density = 1.33", "density = 1.33\nradius = 1.0"), "planets.density"),
     ("eta <= 0", ("disruption_eta = 2.7", "disruption_eta = 0.0"), "outcomes.disruption_eta"),
     ("negative q threshold", ("circularisation_q = 0.05", "circularisation_q = -0.05"), "outcomes.circularisation_q"),
-    ("a list wrong length", ("a_inner = 4.0\nspacing = {distribution = \"uniform\", low = 3.0, high = 5.0}",
-                             "a = [4.0, 6.0]"), "planets.a"),
-    ("a list not increasing", ("a_inner = 4.0\nspacing = {distribution = \"uniform\", low = 3.0, high = 5.0}",
-                               "a = [4.0, 6.0, 5.0]"), "planets.a"),
-    ("masses list wrong length", ('mass = {distribution = "log-uniform", low = 0.5, high = 5.0}',
-                                  "masses = [1.0, 2.0]"), "planets.masses"),
+    (
+        "a list wrong length",
+        ('a_inner = 4.0\nspacing = {distribution = "uniform", low = 3.0, high = 5.0}', "a = [4.0, 6.0]"),
+        "planets.a",
+    ),
+    (
+        "a list not increasing",
+        ('a_inner = 4.0\nspacing = {distribution = "uniform", low = 3.0, high = 5.0}', "a = [4.0, 6.0, 5.0]"),
+        "planets.a",
+    ),
+    (
+        "masses list wrong length",
+        ('mass = {distribution = "log-uniform", low = 0.5, high = 5.0}', "masses = [1.0, 2.0]"),
+        "planets.masses",
+    ),
     ("bool as number", ("e_sigma = 0.02", "e_sigma = true"), "planets.e_sigma"),
-    ("stop flag not bool", ('integrator = "ias15"', 'integrator = "ias15"\nstop_when_settled = 1'),
-     "integration.stop_when_settled"),
+    (
+        "stop flag not bool",
+        ('integrator = "ias15"', 'integrator = "ias15"\nstop_when_settled = 1'),
+        "integration.stop_when_settled",
+    ),
     ("not toml", ("[run]", "[run"), "not valid TOML"),
     ("missing section", ("[star]\nmass = 1.2\nradius = 1.1\n", ""), "[star]"),
 ]
@@ -166,8 +191,8 @@ def test_malformed_spec_one_line_exit_2(tmp_path, capsys, label, change, key):
         load_spec(path)
     assert main(["check", str(path)]) == 2
     err = capsys.readouterr().err
-    assert err.count("\n") == 1, err            # exactly one line
-    assert key in err, err                       # names the key
+    assert err.count("\n") == 1, err  # exactly one line
+    assert key in err, err  # names the key
     assert "Traceback" not in err
 
 
@@ -181,8 +206,7 @@ def test_console_script_exit_status_and_no_traceback(tmp_path):
     """The installed command behaves the same as main() (real process)."""
     path = tmp_path / "bad.toml"
     path.write_text(edit(GOOD, "count = 3", "count = 11"))
-    proc = subprocess.run([sys.executable, "-m", "scatter_pop", "check", str(path)],
-                          capture_output=True, text=True)
+    proc = subprocess.run([sys.executable, "-m", "scatter_pop", "check", str(path)], capture_output=True, text=True)
     assert proc.returncode == 2
     assert proc.stderr.strip().count("\n") == 0 and "planets.count = 11" in proc.stderr
     assert "from 2 to 10" in proc.stderr

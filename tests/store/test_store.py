@@ -25,16 +25,21 @@ import netCDF4
 import numpy as np
 import pytest
 import xarray as xr
+from ensemble_helpers import TINY_TEXT, ensure_program
 
-from scatter_pop.errors import InputError
 from scatter_pop.engine.initial_conditions import draw_system
 from scatter_pop.engine.outcome import EndReason, Fate, PlanetRecord, SystemRecord
-from scatter_pop.store.schema import PHYSICS_VARIABLES, VARIABLES, records_to_dataset
+from scatter_pop.errors import InputError
 from scatter_pop.spec.reader import parse_spec
-from scatter_pop.store.run_folder import (RunFolder, atomic_write_netcdf, open_ensemble, prepare_folder,
-                               read_parts, versions)
-
-from ensemble_helpers import TINY_TEXT, ensure_program
+from scatter_pop.store.run_folder import (
+    RunFolder,
+    atomic_write_netcdf,
+    open_ensemble,
+    prepare_folder,
+    read_parts,
+    versions,
+)
+from scatter_pop.store.schema import PHYSICS_VARIABLES, VARIABLES, records_to_dataset
 
 SPEC = parse_spec(TINY_TEXT)
 
@@ -43,10 +48,23 @@ def record(index: int, reason=EndReason.END_TIME) -> SystemRecord:
     """A record whose initial state is the spec's own draw and whose finals are a copy of it."""
     ic = draw_system(SPEC, index)
     planets = tuple(
-        PlanetRecord(m, a, e, i, r, m, a, e, i, a * (1 - e), r,
-                     fate=Fate.EJECTED if j == index % 2 else Fate.SURVIVED,
-                     t_fate=float(index) if j == index % 2 else math.nan)
-        for j, (m, a, e, i, r) in enumerate(zip(ic.mass, ic.a, ic.e, ic.inc, ic.radius)))
+        PlanetRecord(
+            m,
+            a,
+            e,
+            i,
+            r,
+            m,
+            a,
+            e,
+            i,
+            a * (1 - e),
+            r,
+            fate=Fate.EJECTED if j == index % 2 else Fate.SURVIVED,
+            t_fate=float(index) if j == index % 2 else math.nan,
+        )
+        for j, (m, a, e, i, r) in enumerate(zip(ic.mass, ic.a, ic.e, ic.inc, ic.radius))
+    )
     return SystemRecord(index, ic.seed, planets, 10.0 * index, reason, steps=index, wall_seconds=0.5)
 
 
@@ -65,7 +83,7 @@ def folder_with_parts(tmp_path, ranges=((0, 2), (3, 3))) -> RunFolder:
 
 def assert_physics_equal(a: xr.Dataset, b: xr.Dataset) -> None:
     for name in PHYSICS_VARIABLES:
-        np.testing.assert_array_equal(a[name].values, b[name].values, err_msg=name)   # NaN == NaN here
+        np.testing.assert_array_equal(a[name].values, b[name].values, err_msg=name)  # NaN == NaN here
 
 
 # --------------------------------------------------------------------------- parts
@@ -80,10 +98,10 @@ def test_part_round_trip_is_bit_exact(tmp_path):
 
 def test_atomic_write_leaves_whole_file_or_nothing(tmp_path):
     target = tmp_path / "part.nc"
-    bad = part_data(0, 1).assign(oops=("system", np.array([object(), object()])))   # not writable
+    bad = part_data(0, 1).assign(oops=("system", np.array([object(), object()])))  # not writable
     with pytest.raises((TypeError, ValueError)):
         atomic_write_netcdf(bad, target)
-    assert not target.exists() and list(tmp_path.iterdir()) == []          # no tmp left either
+    assert not target.exists() and list(tmp_path.iterdir()) == []  # no tmp left either
     atomic_write_netcdf(part_data(0, 1), target)
     assert [p.name for p in tmp_path.iterdir()] == ["part.nc"]
 
@@ -130,8 +148,10 @@ def test_changed_spec_refused_naming_the_key_and_fresh_moves_the_old_run_aside(t
 def test_what_may_change_without_a_new_identity(tmp_path):
     """Run name, number of systems, batch size and the wall-clock cap change no system's result."""
     folder = folder_with_parts(tmp_path)
-    grown = parse_spec(TINY_TEXT.replace("systems = 4", "systems = 40").replace('name = "tiny"', 'name = "x"')
-                       + "wall_seconds_max = 5.0\n")
+    grown = parse_spec(
+        TINY_TEXT.replace("systems = 4", "systems = 40").replace('name = "tiny"', 'name = "x"')
+        + "wall_seconds_max = 5.0\n"
+    )
     assert prepare_folder(grown, folder.path).path == folder.path
 
 
@@ -162,13 +182,13 @@ def gathered(tmp_path):
 
 
 def test_ensemble_opens_with_plain_xarray_with_cf_attributes(gathered):
-    ds = xr.open_dataset(gathered.ensemble_path)          # default engine, no scatter_pop code
+    ds = xr.open_dataset(gathered.ensemble_path)  # default engine, no scatter_pop code
     assert_physics_equal(ds, part_data(0, 3))
-    assert ds.attrs["Conventions"].startswith("CF-")                                   # CF 2.6.1
+    assert ds.attrs["Conventions"].startswith("CF-")  # CF 2.6.1
     for v in VARIABLES:
         attrs = ds[v.name].attrs
-        assert attrs["units"] == v.units and attrs["long_name"] == v.long_name          # CF 3.1, 3.2
-        if v.flags is not None:                                                         # CF 3.5
+        assert attrs["units"] == v.units and attrs["long_name"] == v.long_name  # CF 3.1, 3.2
+        if v.flags is not None:  # CF 3.5
             assert attrs["flag_values"].dtype == np.dtype(v.dtype)
             assert attrs["flag_values"].tolist() == [int(c) for c in v.flags]
             assert attrs["flag_meanings"].split() == [c.word for c in v.flags]
@@ -176,16 +196,17 @@ def test_ensemble_opens_with_plain_xarray_with_cf_attributes(gathered):
     assert ds.attrs["star_mass"] == SPEC.star.mass and int(ds.attrs["systems"]) == 4
     for key, value in versions().items():
         assert ds.attrs[key] == value
-    created = dt.datetime.fromisoformat(ds.attrs["date_created"])                     # ACDD 1.3
-    assert abs((dt.datetime.now(dt.timezone.utc) - created).total_seconds()) < 600
+    created = dt.datetime.fromisoformat(ds.attrs["date_created"])  # ACDD 1.3
+    assert abs((dt.datetime.now(dt.UTC) - created).total_seconds()) < 600
     assert ds["fate"].encoding["zlib"] and ds["e_final"].encoding["zlib"]
     ds.close()
 
 
 def test_ensemble_seen_by_netcdf_c_ncdump(gathered):
     ncdump = ensure_program("ncdump", "netcdf-bin")
-    header = subprocess.run([ncdump, "-h", str(gathered.ensemble_path)], capture_output=True,
-                            text=True, check=True).stdout
+    header = subprocess.run(
+        [ncdump, "-h", str(gathered.ensemble_path)], capture_output=True, text=True, check=True
+    ).stdout
     assert 'e_final:units = "1"' in header and 'a_final:units = "au"' in header
     assert 't_fate:units = "yr"' in header and 'mass_initial:units = "Msun"' in header
     assert 'fate:flag_meanings = "survived ejected merged hit_star tidally_disrupted"' in header
@@ -220,13 +241,14 @@ def test_replacing_rows_keeps_the_other_systems(tmp_path):
     again = read_parts(folder, SPEC)[0][0].data
     assert again["end_reason"].values.tolist() == [0, 0, int(EndReason.ONE_PLANET), 0]
     assert_physics_equal(again.sel(system=[0, 1, 3]), part_data(0, 3).sel(system=[0, 1, 3]))
-    assert replaced.path == part.path                          # same file, rewritten atomically
+    assert replaced.path == part.path  # same file, rewritten atomically
     assert [p.name for p in folder.parts_dir.iterdir()] == [part.path.name]
 
 
 def test_docs_document_every_variable_with_its_units():
     """docs/output-schema.md lists each schema variable with schema.py's units."""
     from pathlib import Path
+
     section = (Path(__file__).resolve().parents[2] / "docs" / "output-schema.md").read_text(encoding="utf-8")
     documented = {}
     for row in section.splitlines():

@@ -5,14 +5,16 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from scatter_pop.survey import statistics as st
 from scatter_pop.constants import G_AU_YR_MSUN, MJUP_MSUN
-from scatter_pop.survey.cuts import Range, SampleCuts
 from scatter_pop.errors import InputError
+from scatter_pop.survey import statistics as st
 from scatter_pop.survey.catalogue import ColumnMap, load_catalogue
+from scatter_pop.survey.cuts import Range, SampleCuts
 
 DATA = Path(__file__).resolve().parents[1] / "data" / "observed_rv_giants.csv"
-HEADER = "id,e,e_err_lo,e_err_hi,a_au,period_days,mass_mjup,mass_type,has_inclination,mstar_msun,host_type,discovery_year"
+HEADER = (
+    "id,e,e_err_lo,e_err_hi,a_au,period_days,mass_mjup,mass_type,has_inclination,mstar_msun,host_type,discovery_year"
+)
 
 
 def test_shipped_dataset_default_counts():
@@ -52,11 +54,11 @@ def test_units_converted_once_and_a_from_kepler():
     # a, P and M*, ids 107, 137, 205, 248, 398, 446 (README; catalogue inconsistencies)
     obs = load_catalogue(DATA, keep_zero_e=True)
     assert 0 < obs.n_a_derived <= 25
-    assert obs.mass.max() == pytest.approx(15 * MJUP_MSUN, rel=1e-9)   # M_J -> M_sun
+    assert obs.mass.max() == pytest.approx(15 * MJUP_MSUN, rel=1e-9)  # M_J -> M_sun
     ok = np.isfinite(obs.a) & np.isfinite(obs.period) & np.isfinite(obs.m_star) & ~obs.a_from_kepler
     assert np.count_nonzero(ok) == 600
-    ratio = obs.a[ok] / (obs.m_star[ok] * obs.period[ok] ** 2) ** (1 / 3)     # AU, yr, M_sun
-    ids = obs.line[ok][np.abs(ratio - 1) > 0.2] - 1                            # id = line - 1 here
+    ratio = obs.a[ok] / (obs.m_star[ok] * obs.period[ok] ** 2) ** (1 / 3)  # AU, yr, M_sun
+    ids = obs.line[ok][np.abs(ratio - 1) > 0.2] - 1  # id = line - 1 here
     assert ids.tolist() == [107, 137, 205, 248, 398, 446]
     # derived rows obey Kepler's third law with m sin i added to M* (G in AU^3 yr^-2 M_sun^-1)
     d = obs.a_from_kepler
@@ -65,24 +67,27 @@ def test_units_converted_once_and_a_from_kepler():
 
 
 def test_cuts_count_every_step():
-    cuts = SampleCuts(a=Range(0.1, 5.0), mass=Range(1.0 * MJUP_MSUN, 15 * MJUP_MSUN),
-                      m_star=Range(0.5, 1.5))
+    cuts = SampleCuts(a=Range(0.1, 5.0), mass=Range(1.0 * MJUP_MSUN, 15 * MJUP_MSUN), m_star=Range(0.5, 1.5))
     obs = load_catalogue(DATA, cuts=cuts)
     steps = obs.log.as_dict()
     assert list(steps)[:3] == ["read", "e_known", "e_nonzero"]
     assert obs.n == obs.log.final
     # a known everywhere a range cut needs it (independent recount of the CSV below)
     import csv
+
     with DATA.open() as fh:
         rows = list(csv.DictReader(fh))
+
     def f(x):
         return float(x) if x else np.nan
-    e = np.array([f(r["e"]) for r in rows]); ms = np.array([f(r["mstar_msun"]) for r in rows])
+
+    e = np.array([f(r["e"]) for r in rows])
+    ms = np.array([f(r["mstar_msun"]) for r in rows])
     m = np.array([f(r["mass_mjup"]) for r in rows])
     keep = (e > 0) & (m >= 1.0) & (m <= 15) & (ms >= 0.5) & (ms <= 1.5)
     assert obs.n <= np.count_nonzero(keep)
     assert np.all((obs.a >= 0.1) & (obs.a <= 5.0))
-    assert "m_star_known" in steps                      # 15 rows lack M*: dropped and counted
+    assert "m_star_known" in steps  # 15 rows lack M*: dropped and counted
 
 
 def _write(tmp_path, lines, name="cat.csv"):
@@ -130,8 +135,15 @@ def test_non_numeric_and_out_of_range_e(tmp_path):
 
 
 def test_empty_after_cuts_and_missing_values_counted(tmp_path):
-    p = _write(tmp_path, [HEADER, "1,0.2,,,1,365,1,msini,0,1,star,2000", "2,NaN,,,1,365,1,msini,0,1,star,2000",
-                          "3,0.0,,,1,365,1,msini,0,1,star,2000"])
+    p = _write(
+        tmp_path,
+        [
+            HEADER,
+            "1,0.2,,,1,365,1,msini,0,1,star,2000",
+            "2,NaN,,,1,365,1,msini,0,1,star,2000",
+            "3,0.0,,,1,365,1,msini,0,1,star,2000",
+        ],
+    )
     obs = load_catalogue(p)
     assert obs.log.as_dict() == {"read": 3, "e_known": 2, "e_nonzero": 1}
     with pytest.raises(InputError) as exc:
@@ -163,6 +175,7 @@ def test_shipped_dataset_against_kipping_beta():
     # exact zeros cannot come from a law with F(0) = 0: A^2 infinite, p = 0
     assert r.ad_statistic == float("inf") and r.ad_pvalue == 0.0
     import scipy.stats
+
     e = load_catalogue(DATA).e
     a, b = st.fit_beta(e)
     assert scipy.stats.kstest(e, scipy.stats.beta(a, b).cdf).pvalue == pytest.approx(0.014, abs=5e-4)

@@ -6,18 +6,17 @@ import json
 
 import numpy as np
 import pytest
-
 from records import random_ensemble, write_run
-from scatter_pop.survey.comparison import CompareOptions, compare, load_ensemble
-from scatter_pop.survey.cuts import Range, SampleCuts
+
 from scatter_pop.errors import InputError
 from scatter_pop.survey.catalogue import load_catalogue
-from scatter_pop.survey.report import FORMATS, render, report_to_dict
+from scatter_pop.survey.comparison import CompareOptions, compare, load_ensemble
+from scatter_pop.survey.cuts import Range, SampleCuts
 from scatter_pop.survey.forward_model import RESCALE_NOTE, RVSurvey
+from scatter_pop.survey.report import FORMATS, render, report_to_dict
 from scatter_pop.survey.statistics import reference_distribution
 
-FAST = dict(permutations=199, uncertainty_draws=8, bootstrap_draws=8, spread_permutations=49,
-            reference_samples=199)
+FAST = dict(permutations=199, uncertainty_draws=8, bootstrap_draws=8, spread_permutations=49, reference_samples=199)
 
 
 def _catalogue(path, e, err=0.03):
@@ -65,11 +64,12 @@ def test_several_ensembles_pooled_and_deterministic(setup):
     r1 = report_to_dict(compare(samples, obs, opts))
     r2 = report_to_dict(compare(samples, obs, opts))
     assert r1 == r2
-    r3 = report_to_dict(compare(samples, obs, CompareOptions(**FAST, seed=6,
-                                                             survey=RVSurvey(k_min=10.0, baseline=20.0))))
+    r3 = report_to_dict(
+        compare(samples, obs, CompareOptions(**FAST, seed=6, survey=RVSurvey(k_min=10.0, baseline=20.0)))
+    )
     assert r3["samples"][0]["observed_uncertainty"] != r1["samples"][0]["observed_uncertainty"]
     n = [s["test"]["n_x"] for s in r1["samples"]]
-    assert n[2] == pytest.approx(n[0] + n[1], abs=40)     # pooled: own sin i draws, same survivors
+    assert n[2] == pytest.approx(n[0] + n[1], abs=40)  # pooled: own sin i draws, same survivors
     counts = {c["key"]: c["n"] for c in r1["samples"][2]["counts"]}
     assert counts["systems"] == 600 and counts["survivors"] == 600
     assert counts["rv_detectable"] == n[2]
@@ -93,18 +93,19 @@ def test_every_format_renders_the_same_numbers(setup):
     rows = list(csv.DictReader(io.StringIO(render(rep, "csv"))))
     two = [r for r in rows if r["sample"] == "two_planet" and r["test"] == "two_sample"][0]
     assert float(two["ks_statistic"]) == t.ks_statistic and float(two["ad_pvalue"]) == t.ad_pvalue
-    assert int(two["n_sample"]) == t.n_x and int(two["n_bound"]) == t.n_x   # no cut after "bound"
+    assert int(two["n_sample"]) == t.n_x and int(two["n_bound"]) == t.n_x  # no cut after "bound"
     assert {r["against"] for r in rows if r["test"] == "one_sample"} == {"beta_kipping2013", "rayleigh_jt2008"}
     doc = json.loads(render(rep, "json"))
     assert doc["samples"][0]["test"]["ks_pvalue"] == t.ks_pvalue
     # c(0.05) sqrt((n+m)/(nm)) with c(0.05) = 1.3581 (asymptotic KS, REFERENCES.md)
     assert doc["samples"][0]["ks_critical_value_0.05"] == pytest.approx(
-        1.3581 * ((t.n_x + t.n_y) / (t.n_x * t.n_y)) ** 0.5, rel=1e-4)
+        1.3581 * ((t.n_x + t.n_y) / (t.n_x * t.n_y)) ** 0.5, rel=1e-4
+    )
     assert doc["observed"]["counts"][0] == {"key": "read", "label": "rows read", "n": 250}
     tex = render(rep, "latex")
     for word in (r"\toprule", r"\midrule", r"\bottomrule", r"two\_planet", r"three\_planet"):
         assert word in tex
-    assert tex.count(r"\\") == 3                       # header + two rows
+    assert tex.count(r"\\") == 3  # header + two rows
     text = render(rep, "text")
     assert f"D = {t.ks_statistic:.4f}" in text and "two_planet" in text
     assert set(FORMATS) == {"text", "csv", "json", "latex"}

@@ -6,8 +6,8 @@ import numpy as np
 import pytest
 import scipy.stats
 
-from scatter_pop.survey import radial_velocity as rv
 from scatter_pop.constants import GM_SUN_SI, MJUP_MSUN
+from scatter_pop.survey import radial_velocity as rv
 
 # IAU 2015 Resolution B3 nominal terrestrial mass parameter GM_E = 3.986004e14 m^3 s^-2
 # (Prsa et al. 2016, AJ 152, 41); not in constants.py because the engine never needs it.
@@ -44,10 +44,19 @@ def test_semi_amplitude_against_astropy():
     # cross-check with astropy units and constants (reference library, IAU 2015 values)
     u = pytest.importorskip("astropy.units")
     c = pytest.importorskip("astropy.constants")
-    m_p, p, e, m_s, sin_i = 4.0, 2.5, 0.82, 0.9, 0.7   # M_J, yr, -, M_sun, -
+    m_p, p, e, m_s, sin_i = 4.0, 2.5, 0.82, 0.9, 0.7  # M_J, yr, -, M_sun, -
     mu_p = (m_p * c.GM_jup / c.GM_sun).value
-    k_ref = ((2 * math.pi * c.GM_sun / (p * u.yr)) ** (1 / 3) * mu_p * sin_i
-             * (m_s + mu_p) ** (-2 / 3) / math.sqrt(1 - e * e)).to(u.m / u.s).value
+    k_ref = (
+        (
+            (2 * math.pi * c.GM_sun / (p * u.yr)) ** (1 / 3)
+            * mu_p
+            * sin_i
+            * (m_s + mu_p) ** (-2 / 3)
+            / math.sqrt(1 - e * e)
+        )
+        .to(u.m / u.s)
+        .value
+    )
     assert rv.semi_amplitude(m_p * MJUP_MSUN, p, e, m_s, sin_i) == pytest.approx(k_ref, rel=1e-12)
 
 

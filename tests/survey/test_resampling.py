@@ -36,7 +36,7 @@ def test_split_normal_keeps_unknown_errors_and_range():
     lo = np.array([0.05, np.nan, 0.3, 0.0])
     hi = np.array([0.05, np.nan, 0.3, 0.0])
     draws = np.array([rs.split_normal_truncated(mode, lo, hi, rng) for _ in range(2000)])
-    assert np.all(draws[:, 1] == 0.3) and np.all(draws[:, 3] == 0.2)   # no error: fixed
+    assert np.all(draws[:, 1] == 0.3) and np.all(draws[:, 3] == 0.2)  # no error: fixed
     assert draws[:, 0].min() >= 0.0 and draws[:, 2].max() < 1.0
     assert draws[:, 2].std() > 0.05
 
@@ -49,8 +49,9 @@ def test_observed_uncertainty_spread_deterministic_and_collapses_without_errors(
     b = rs.observed_uncertainty_spread(sim, obs, err, err, draws=20, permutations=50, rng=7)
     assert a == b and a.draws == 20 and a.n_varied == 80
     assert a.ks_statistic.p84 > a.ks_statistic.p16
-    none = rs.observed_uncertainty_spread(sim, obs, np.full(80, np.nan), np.full(80, np.nan),
-                                          draws=10, permutations=20, rng=7)
+    none = rs.observed_uncertainty_spread(
+        sim, obs, np.full(80, np.nan), np.full(80, np.nan), draws=10, permutations=20, rng=7
+    )
     assert none.ks_statistic.p16 == none.ks_statistic.p84 and none.n_varied == 0
 
 
@@ -58,6 +59,7 @@ def test_bootstrap_spread_brackets_full_sample_statistic():
     rng = np.random.default_rng(5)
     sim, obs = rng.beta(1, 3, 400), rng.beta(1.3, 3, 120)
     from scatter_pop.survey.statistics import two_sample
+
     full = two_sample(sim, obs, permutations=50, rng=0)
     boot = rs.simulated_bootstrap_spread(sim, obs, draws=40, permutations=30, rng=8)
     assert boot.kind == "simulated_bootstrap" and boot.n_varied == 400

@@ -39,8 +39,7 @@ def test_ks_critical_value_matches_scipy_asymptotic_distribution():
     # cross-check against scipy.stats.kstwobign (the Kolmogorov limiting distribution):
     # its upper alpha-quantile agrees with c(alpha) to the accuracy of the one-term series
     for alpha in (0.1, 0.05, 0.01):
-        assert st.ks_critical_coefficient(alpha) == pytest.approx(
-            scipy.stats.kstwobign.isf(alpha), rel=2e-3)
+        assert st.ks_critical_coefficient(alpha) == pytest.approx(scipy.stats.kstwobign.isf(alpha), rel=2e-3)
 
 
 # --------------------------------------------------------------------------- Anderson-Darling
@@ -88,9 +87,9 @@ def test_vectorised_ad_permutation_equals_scipy(ties):
     if ties:
         x, y = np.round(x, 2), np.round(y, 2)
     r = st.two_sample(x, y, permutations=300, rng=np.random.default_rng(8))
-    ref = scipy.stats.anderson_ksamp([x, y], variant="midrank",
-                                     method=scipy.stats.PermutationMethod(n_resamples=300,
-                                                                          rng=np.random.default_rng(8)))
+    ref = scipy.stats.anderson_ksamp(
+        [x, y], variant="midrank", method=scipy.stats.PermutationMethod(n_resamples=300, rng=np.random.default_rng(8))
+    )
     assert r.ad_statistic == pytest.approx(ref.statistic, rel=1e-12, abs=1e-12)
     assert r.ad_pvalue == ref.pvalue
 
@@ -103,7 +102,7 @@ def test_two_sample_pvalue_not_floored_at_scipy_limit():
     y = 0.3 * np.sqrt(-2 * np.log(rng.random(300)))
     r = st.two_sample(x, y, permutations=499, rng=rng)
     assert r.ad_pvalue == pytest.approx(1 / 500)
-    assert r.ks_pvalue < 1e-6            # asymptotic KS p is not clipped either
+    assert r.ks_pvalue < 1e-6  # asymptotic KS p is not clipped either
 
 
 def test_two_sample_not_rejected_for_identical_distributions_and_deterministic():

@@ -8,17 +8,17 @@ import numpy as np
 import pytest
 import scipy.integrate
 import scipy.stats
-
 from records import dataset, planet, system, write_run
+
 from scatter_pop import cli
 from scatter_pop.constants import MJUP_MSUN
-from scatter_pop.target.architecture import min_spacing, mutual_hill_spacing
-from scatter_pop.survey.forward_model import ensemble_star_mass
-from scatter_pop.target.judgement import judge
 from scatter_pop.engine.outcome import EndReason, Fate
-from scatter_pop.target.proportions import proportion, upper_limit
-from scatter_pop.target.planet import Target, Windows, target_from_flags
+from scatter_pop.survey.forward_model import ensemble_star_mass
+from scatter_pop.target.architecture import min_spacing, mutual_hill_spacing
+from scatter_pop.target.judgement import judge
 from scatter_pop.target.matching import msini_kernel, sin_i_cdf, soft_weight
+from scatter_pop.target.planet import Target, Windows, target_from_flags
+from scatter_pop.target.proportions import proportion, upper_limit
 from scatter_pop.target.verdict import render_text, to_dict
 
 TARGET = dict(e=0.9, e_err=0.02, a=9.0, a_err=1.5, msini=5.0, msini_err=0.5)
@@ -91,7 +91,7 @@ def test_zero_matches_give_exact_one_sided_upper_limit(n):
 
 def test_upper_limit_function():
     # 1 - 0.05^(1/n) for n = 100: 0.029513 (derived from the formula)
-    assert upper_limit(100) == pytest.approx(1 - 0.05 ** 0.01, rel=1e-12)
+    assert upper_limit(100) == pytest.approx(1 - 0.05**0.01, rel=1e-12)
     assert proportion(0, 100).upper_limit == upper_limit(100)
     assert proportion(3, 100).upper_limit is None
 
@@ -126,8 +126,10 @@ def test_projected_matches_follow_isotropic_orientation():
     # m sin i window 4-6 M_J then holds it with P = sqrt(1 - (4/6)^2) - 0 (isotropic
     # orientation, cos i uniform: P(sin i <= s) = 1 - sqrt(1 - s^2); common practice)
     n = 4000
-    recs = [system(i, [planet(6.0, 9.0, 0.95, a_initial=5.0), planet(1.0, -20.0, 1.3, a_initial=6.5, fate=Fate.EJECTED)])
-            for i in range(n)]
+    recs = [
+        system(i, [planet(6.0, 9.0, 0.95, a_initial=5.0), planet(1.0, -20.0, 1.3, a_initial=6.5, fate=Fate.EJECTED)])
+        for i in range(n)
+    ]
     t = _target(msini=5.0, msini_err=0.5)
     res = judge(dataset(recs, 2), t, seed=7).ensembles[0]
     p = math.sqrt(1 - (4 / 6) ** 2)
@@ -142,8 +144,12 @@ def test_msini_kernel_against_quadrature():
     # E over cos i ~ U(0,1) of exp(-((m sin i - x)/s)^2 / 2), by scipy.integrate.quad
     for m, x, s in [(6.0, 5.0, 0.5), (5.2, 5.0, 0.3), (12.0, 5.0, 0.6), (3.0, 5.0, 0.5)]:
         ref, _ = scipy.integrate.quad(
-            lambda c: math.exp(-0.5 * ((m * math.sqrt(1 - c * c) - x) / s) ** 2), 0.0, 1.0,
-            limit=200, points=[math.sqrt(max(0.0, 1 - (x / m) ** 2))] if m > x else None)
+            lambda c, m=m, x=x, s=s: math.exp(-0.5 * ((m * math.sqrt(1 - c * c) - x) / s) ** 2),
+            0.0,
+            1.0,
+            limit=200,
+            points=[math.sqrt(max(0.0, 1 - (x / m) ** 2))] if m > x else None,
+        )
         assert msini_kernel(np.array([m]), x, s)[0] == pytest.approx(ref, abs=2e-4)
 
 
@@ -159,8 +165,16 @@ def test_soft_weight_factors():
 def test_weighted_fraction_tends_to_hard_count_for_tiny_uncertainties():
     # with e_err -> 0 and the windows' widths the weight is still Gaussian in a and m, so use
     # survivors exactly at the target: weight 1 each; others far away: weight ~0
-    recs = [system(i, [planet(5.0, 9.0, 0.95 if i < 8 else 0.1, a_initial=5.0),
-                       planet(1.0, -20.0, 1.3, a_initial=6.5, fate=Fate.EJECTED)]) for i in range(100)]
+    recs = [
+        system(
+            i,
+            [
+                planet(5.0, 9.0, 0.95 if i < 8 else 0.1, a_initial=5.0),
+                planet(1.0, -20.0, 1.3, a_initial=6.5, fate=Fate.EJECTED),
+            ],
+        )
+        for i in range(100)
+    ]
     t = _target(e_err=1e-6, true_mass=True)
     res = judge(dataset(recs, 2), t).ensembles[0]
     assert res.weighted_systems.value == pytest.approx(0.08, abs=1e-9)
@@ -172,15 +186,33 @@ def test_weighted_fraction_tends_to_hard_count_for_tiny_uncertainties():
 def test_pathways_of_matching_systems():
     recs = []
     for i in range(40):
-        if i < 4:      # matching, the other planet ejected; one is a tidal candidate
-            recs.append(system(i, [planet(5.0, 9.0, 0.95, a_initial=5.0, tidal=(i == 0)),
-                                   planet(1.0, -20.0, 1.3, a_initial=6.5, fate=Fate.EJECTED)], t_enc=100.0 + i))
-        elif i < 6:    # matching, the other planet merged
-            recs.append(system(i, [planet(5.0, 9.0, 0.95, a_initial=5.0), planet(1.0, 6.5, 0.2, a_initial=6.5, fate=Fate.MERGED)],
-                               t_enc=200.0))
-        else:          # not matching: lost to the star
-            recs.append(system(i, [planet(5.0, 4.0, 0.3, a_initial=5.0), planet(1.0, 0.1, 0.99, a_initial=6.5, fate=Fate.HIT_STAR)],
-                               t_enc=5e3))
+        if i < 4:  # matching, the other planet ejected; one is a tidal candidate
+            recs.append(
+                system(
+                    i,
+                    [
+                        planet(5.0, 9.0, 0.95, a_initial=5.0, tidal=(i == 0)),
+                        planet(1.0, -20.0, 1.3, a_initial=6.5, fate=Fate.EJECTED),
+                    ],
+                    t_enc=100.0 + i,
+                )
+            )
+        elif i < 6:  # matching, the other planet merged
+            recs.append(
+                system(
+                    i,
+                    [planet(5.0, 9.0, 0.95, a_initial=5.0), planet(1.0, 6.5, 0.2, a_initial=6.5, fate=Fate.MERGED)],
+                    t_enc=200.0,
+                )
+            )
+        else:  # not matching: lost to the star
+            recs.append(
+                system(
+                    i,
+                    [planet(5.0, 4.0, 0.3, a_initial=5.0), planet(1.0, 0.1, 0.99, a_initial=6.5, fate=Fate.HIT_STAR)],
+                    t_enc=5e3,
+                )
+            )
     res = judge(dataset(recs, 2), _target(true_mass=True)).ensembles[0]
     pw = res.pathways
     assert (pw.n_matching, pw.n_all, pw.n_planets) == (6, 40, 6)
@@ -197,9 +229,18 @@ def test_configurations_that_favour_the_target():
     recs = []
     for i in range(60):
         if i < 10:
-            recs.append(system(i, [planet(5.0, 9.0, 0.95, a_initial=5.0), planet(1.0, -20.0, 1.3, a_initial=6.5, fate=Fate.EJECTED)]))
+            recs.append(
+                system(
+                    i,
+                    [planet(5.0, 9.0, 0.95, a_initial=5.0), planet(1.0, -20.0, 1.3, a_initial=6.5, fate=Fate.EJECTED)],
+                )
+            )
         else:
-            recs.append(system(i, [planet(5.0, 4.0, 0.2, a_initial=5.0), planet(5.0, -20.0, 1.3, a_initial=6.5, fate=Fate.EJECTED)]))
+            recs.append(
+                system(
+                    i, [planet(5.0, 4.0, 0.2, a_initial=5.0), planet(5.0, -20.0, 1.3, a_initial=6.5, fate=Fate.EJECTED)]
+                )
+            )
     res = judge(dataset(recs, 2), _target(true_mass=True)).ensembles[0]
     mr = {c.key: c for c in res.configurations}["mass_ratio"]
     assert mr.median_matching == pytest.approx(0.2)
@@ -212,8 +253,9 @@ def test_configurations_that_favour_the_target():
 
 def test_pooled_ensembles_compare_planet_count():
     two = dataset([system(i, _miss(i)) for i in range(30)], 2)
-    three = dataset([system(i, _match() + [planet(1.0, -30.0, 1.2, a_initial=8.0, fate=Fate.EJECTED)])
-                     for i in range(20)], 3)
+    three = dataset(
+        [system(i, _match() + [planet(1.0, -30.0, 1.2, a_initial=8.0, fate=Fate.EJECTED)]) for i in range(20)], 3
+    )
     res = judge([two, three], _target(true_mass=True), labels=["two", "three"])
     assert [r.systems.k for r in res.ensembles] == [0, 20]
     count = {c.key: c for c in res.pooled.configurations}["count"]
@@ -229,20 +271,24 @@ def test_spacing_in_mutual_hill_radii_against_gladman():
     assert mutual_hill_spacing(1.0, 1.352233, 1e-3, 1e-3, 1.0) == pytest.approx(3.428, abs=2e-3)
     ds = dataset([system(0, [planet(1.0, 1.0, 0.1, a_initial=1.352233), planet(1.0, 1.0, 0.1, a_initial=1.0)])], 2)
     ds["mass_initial"][:] = 1e-3
-    assert min_spacing(ds, 1.0)[0] == pytest.approx(3.428, abs=2e-3)   # order by a, not by index
+    assert min_spacing(ds, 1.0)[0] == pytest.approx(3.428, abs=2e-3)  # order by a, not by index
     assert ensemble_star_mass(ds) == 1.0
 
 
 def test_mass_scaling_with_the_targets_star():
     # planets of 2.5 M_J around a 1 M_sun star are like 5 M_J planets around 2 M_sun (same mu)
-    recs = [system(i, [planet(2.5, 9.0, 0.95, a_initial=5.0), planet(1.0, -20.0, 1.3, a_initial=6.5, fate=Fate.EJECTED)])
-            for i in range(20)]
+    recs = [
+        system(i, [planet(2.5, 9.0, 0.95, a_initial=5.0), planet(1.0, -20.0, 1.3, a_initial=6.5, fate=Fate.EJECTED)])
+        for i in range(20)
+    ]
     unscaled = judge(dataset(recs, 2), _target(true_mass=True)).ensembles[0]
     scaled = judge(dataset(recs, 2), _target(true_mass=True, mstar=2.0)).ensembles[0]
     assert unscaled.systems.k == 0 and scaled.systems.k == 20
     assert scaled.mass_scale == pytest.approx(2.0)
-    assert any("M*_target / M*_ensemble" in c for c in to_dict(judge(dataset(recs, 2),
-               _target(true_mass=True, mstar=2.0)))["ensembles"][0]["caveats"])
+    assert any(
+        "M*_target / M*_ensemble" in c
+        for c in to_dict(judge(dataset(recs, 2), _target(true_mass=True, mstar=2.0)))["ensembles"][0]["caveats"]
+    )
 
 
 def test_json_is_valid_and_carries_the_verdict():
@@ -263,9 +309,28 @@ def _run(argv, capsys):
 def test_cli_judge_text_and_files(tmp_path, capsys):
     run = write_run(tmp_path / "runA", [system(i, _match() if i < 4 else _miss(i)) for i in range(80)], 2)
     out = tmp_path / "verdict"
-    code, stdout, err = _run(["judge", str(run), "--e", "0.9", "--e-err", "0.02", "--a", "9", "--a-err",
-                              "1.5", "--msini", "5", "--msini-err", "0.5", "--true-mass", "--out", str(out)],
-                             capsys)
+    code, stdout, err = _run(
+        [
+            "judge",
+            str(run),
+            "--e",
+            "0.9",
+            "--e-err",
+            "0.02",
+            "--a",
+            "9",
+            "--a-err",
+            "1.5",
+            "--msini",
+            "5",
+            "--msini-err",
+            "0.5",
+            "--true-mass",
+            "--out",
+            str(out),
+        ],
+        capsys,
+    )
     assert code == 0, err
     assert "4 / 80" in stdout and "verdict:" in stdout
     doc = json.loads((out / "verdict.json").read_text())
@@ -274,12 +339,22 @@ def test_cli_judge_text_and_files(tmp_path, capsys):
 
 
 BAD = [
-    (["--e", "1.0"], "--e"), (["--e", "-0.1"], "--e"), (["--e", "nan"], "--e"), (["--e", "abc"], "--e"),
-    (["--e-err", "-0.01"], "--e-err"), (["--a", "0"], "--a"), (["--a", "-3"], "--a"),
-    (["--a-err", "-1"], "--a-err"), (["--msini", "0"], "--msini"), (["--msini", "-2"], "--msini"),
-    (["--msini-err", "-0.5"], "--msini-err"), (["--mstar", "0"], "--mstar"),
-    (["--a-factor", "1"], "--a-factor"), (["--a-window", "0"], "--a-window"),
-    (["--a-err", "0"], "--a-err"), (["--confidence", "1.5"], "--confidence"),
+    (["--e", "1.0"], "--e"),
+    (["--e", "-0.1"], "--e"),
+    (["--e", "nan"], "--e"),
+    (["--e", "abc"], "--e"),
+    (["--e-err", "-0.01"], "--e-err"),
+    (["--a", "0"], "--a"),
+    (["--a", "-3"], "--a"),
+    (["--a-err", "-1"], "--a-err"),
+    (["--msini", "0"], "--msini"),
+    (["--msini", "-2"], "--msini"),
+    (["--msini-err", "-0.5"], "--msini-err"),
+    (["--mstar", "0"], "--mstar"),
+    (["--a-factor", "1"], "--a-factor"),
+    (["--a-window", "0"], "--a-window"),
+    (["--a-err", "0"], "--a-err"),
+    (["--confidence", "1.5"], "--confidence"),
     (["--seed", "-1"], "--seed"),
 ]
 
@@ -290,21 +365,38 @@ def test_cli_bad_target_values(tmp_path, capsys, change, flag):
     out = tmp_path / "verdict"
     out.mkdir()
     (out / "verdict.txt").write_text("earlier result\n")
-    argv = {"--e": "0.9", "--e-err": "0.02", "--a": "9", "--a-err": "1.5", "--msini": "5",
-            "--msini-err": "0.5"}
+    argv = {"--e": "0.9", "--e-err": "0.02", "--a": "9", "--a-err": "1.5", "--msini": "5", "--msini-err": "0.5"}
     argv.update(dict(zip(change[::2], change[1::2])))
-    code, stdout, err = _run(["judge", str(run), *sum(([k, v] for k, v in argv.items()), []),
-                              "--out", str(out)], capsys)
+    code, stdout, err = _run(
+        ["judge", str(run), *sum(([k, v] for k, v in argv.items()), []), "--out", str(out)], capsys
+    )
     assert code == 2
     lines = err.strip().splitlines()
     assert len(lines) == 1 and flag in lines[0] and "Traceback" not in err
     assert lines[0].startswith("scatter-pop judge: error: ")
-    assert (out / "verdict.txt").read_text() == "earlier result\n"     # nothing overwritten
+    assert (out / "verdict.txt").read_text() == "earlier result\n"  # nothing overwritten
 
 
 def test_cli_missing_run_folder(tmp_path, capsys):
-    code, _, err = _run(["judge", str(tmp_path / "nowhere"), "--e", "0.9", "--e-err", "0.02", "--a", "9",
-                         "--a-err", "1.5", "--msini", "5", "--msini-err", "0.5"], capsys)
+    code, _, err = _run(
+        [
+            "judge",
+            str(tmp_path / "nowhere"),
+            "--e",
+            "0.9",
+            "--e-err",
+            "0.02",
+            "--a",
+            "9",
+            "--a-err",
+            "1.5",
+            "--msini",
+            "5",
+            "--msini-err",
+            "0.5",
+        ],
+        capsys,
+    )
     assert code == 2 and "DIR" in err and len(err.strip().splitlines()) == 1
 
 
@@ -315,4 +407,4 @@ def test_ensemble_with_no_usable_system_says_so():
     assert (r.systems.n, r.excluded["failed"]) == (0, 3) and math.isnan(r.systems.fraction)
     text = render_text(res)
     assert "nothing can be said" in text and "No bound survivors" in text
-    json.dumps(to_dict(res))                                     # NaN rendered as null: valid JSON
+    json.dumps(to_dict(res))  # NaN rendered as null: valid JSON

@@ -21,8 +21,9 @@ _SUPPORT = {"base", "rebound_family"}
 @cache
 def backend_names() -> tuple[str, ...]:
     """Names of every back end module, in alphabetical order (importing none of them)."""
-    return tuple(sorted(m.name for m in pkgutil.iter_modules(__path__)
-                        if m.name not in _SUPPORT and not m.name.startswith("_")))
+    return tuple(
+        sorted(m.name for m in pkgutil.iter_modules(__path__) if m.name not in _SUPPORT and not m.name.startswith("_"))
+    )
 
 
 def backend(name: str):

@@ -33,20 +33,19 @@ class Backend:
         """Integrate one :class:`~scatter_pop.engine.initial_conditions.InitialSystem`; a SystemRecord."""
         raise NotImplementedError
 
-    def integrate_many(self, initials, integration, outcomes, *, checkpoint_paths=None, budgets=None,
-                       reference=False):
+    def integrate_many(self, initials, integration, outcomes, *, checkpoint_paths=None, budgets=None, reference=False):
         """Integrate several systems of one task; records in the order of ``initials``.
 
         A back end that integrates systems together (SIMD lanes) overrides this; the default takes
         them one after the other.  ``budgets`` replaces ``integration.wall_seconds_max`` per system.
         """
         from dataclasses import replace
+
         records = []
         for k, initial in enumerate(initials):
             integ = integration if budgets is None else replace(integration, wall_seconds_max=budgets[k])
             path = None if checkpoint_paths is None else checkpoint_paths[k]
-            records.append(self.integrate_one(initial, integ, outcomes, checkpoint_path=path,
-                                              reference=reference))
+            records.append(self.integrate_one(initial, integ, outcomes, checkpoint_path=path, reference=reference))
         return records
 
     def __repr__(self) -> str:

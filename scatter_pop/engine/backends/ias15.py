@@ -12,6 +12,7 @@ class IAS15(ReboundBackend):
 
     def configure(self, sim, integration, initial) -> None:
         from scatter_pop.engine.rebound_setup import MIN_DT_FRACTION, contact_time
+
         sim.integrator.epsilon = integration.epsilon
         sim.integrator.min_dt = MIN_DT_FRACTION * contact_time(initial)
 

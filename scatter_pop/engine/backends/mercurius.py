@@ -10,7 +10,7 @@ class Mercurius(ReboundBackend):
     summary = "REBOUND MERCURIUS, hybrid fixed step (integration.steps_per_orbit, r_crit_hill)"
     spec_keys = ("steps_per_orbit", "r_crit_hill")
     hybrid = True
-    collision = "direct"            # REBOUND's search at step ends, approaching pairs only
+    collision = "direct"  # REBOUND's search at step ends, approaching pairs only
 
     def configure(self, sim, integration, initial) -> None:
         sim.integrator.r_crit_hill = integration.r_crit_hill

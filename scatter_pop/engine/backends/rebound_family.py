@@ -36,4 +36,5 @@ class ReboundBackend(Backend):
 
     def integrate_one(self, initial, integration, outcomes, *, checkpoint_path=None, reference=False):
         from scatter_pop.engine.rebound_run import SystemRun
+
         return SystemRun(initial, integration, outcomes, checkpoint_path, reference, backend=self).run()
