@@ -28,9 +28,10 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.stats
 
+from scatter_pop.survey.statistics import Spread
 from scatter_pop.target.branches import BRANCHES
 
-__all__ = ["Spread", "Pathways", "ConfigComparison", "pathways", "compare_configurations", "CONFIG_QUANTITIES"]
+__all__ = ["Pathways", "ConfigComparison", "pathways", "compare_configurations", "CONFIG_QUANTITIES"]
 
 #: frame attribute -> (description, unit)
 CONFIG_QUANTITIES = {
@@ -38,25 +39,6 @@ CONFIG_QUANTITIES = {
     "spacing": ("closest initial spacing", "mutual Hill radii"),
     "count": ("initial planet count", ""),
 }
-
-
-@dataclass(frozen=True)
-class Spread:
-    """Median and 16th/84th percentiles of the finite values of a sample."""
-
-    median: float
-    p16: float
-    p84: float
-    n: int
-
-    @classmethod
-    def of(cls, values) -> Spread:
-        v = np.asarray(values, dtype=float)
-        v = v[np.isfinite(v)]
-        if v.size == 0:
-            return cls(math.nan, math.nan, math.nan, 0)
-        p16, med, p84 = np.percentile(v, [16, 50, 84])
-        return cls(float(med), float(p16), float(p84), int(v.size))
 
 
 @dataclass(frozen=True)
