@@ -64,7 +64,7 @@ class ColumnMap:
     m_star: str = "mstar_msun"
 
     @classmethod
-    def parse(cls, text: str, flag: str = "--columns") -> tuple[ColumnMap, frozenset[str]]:
+    def parse(cls, text: str, flag: str = "columns") -> tuple[ColumnMap, frozenset[str]]:
         """Read ``quantity=column,...``; return the map and the quantities given explicitly."""
         known = {f.name for f in fields(cls)}
         mapping = {}
