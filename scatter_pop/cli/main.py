@@ -119,6 +119,16 @@ def attach_negative_values(argv: list[str]) -> list[str]:
     return out
 
 
+def _unrecognized(parser, extras: list[str]) -> None:
+    """Refuse unknown arguments in the subcommand's name, with the nearest known flag."""
+    import difflib
+
+    known = [o for action in parser._actions for o in action.option_strings if o.startswith("--")]
+    near = difflib.get_close_matches(extras[0].split("=")[0], known, n=1)
+    hint = f" (did you mean {near[0]}?)" if near and extras[0].startswith("-") else ""
+    parser.error(f"unrecognized arguments: {' '.join(extras)}{hint}")
+
+
 def _quiet_broken_pipe() -> int:
     # the reader went away (`| head`): stop writing, say nothing (Python docs, "Note on SIGPIPE")
     try:
@@ -134,7 +144,9 @@ def main(argv: list[str] | None = None) -> int:
     argv = list(sys.argv[1:] if argv is None else argv)
     parser = build_parser()
     try:
-        args = parser.parse_args(attach_negative_values(argv))
+        args, extras = parser.parse_known_args(attach_negative_values(argv))
+        if extras:
+            _unrecognized(args._parser, extras)
     except BrokenPipeError:  # --help or --version into a closed pipe
         return _quiet_broken_pipe()
     except SystemExit as exc:  # argparse: --help, --version (0) or a usage error (2, one line printed)
@@ -173,9 +185,16 @@ def _configure_output(verbosity: int) -> None:
         warnings.simplefilter("ignore")
 
 
-def entry() -> None:  # pragma: no cover - console script wrapper
-    sys.exit(main())
+def entry() -> None:
+    """The console script: :func:`main`, then the last flush of standard output, which meets a closed
+    pipe quietly too (``scatter-pop --version | true``)."""
+    status = main()
+    try:
+        sys.stdout.flush()
+    except BrokenPipeError:
+        status = _quiet_broken_pipe() or status
+    sys.exit(status)
 
 
 if __name__ == "__main__":  # pragma: no cover
-    sys.exit(main())
+    entry()
