@@ -128,7 +128,7 @@ def describe_e(e) -> dict:
     }
 
 
-def load_ensemble(path, *, partial: bool = False, flag: str = "DIR") -> xr.Dataset:
+def load_ensemble(path, *, partial: bool = False, flag: str = "path") -> xr.Dataset:
     """Open a run folder (its ``ensemble.nc``) or a netCDF file directly.
 
     Parameters
@@ -146,14 +146,17 @@ def load_ensemble(path, *, partial: bool = False, flag: str = "DIR") -> xr.Datas
     if p.is_dir() and not RunFolder(p).is_run_folder():
         p = p / "ensemble.nc"  # a bare folder holding ensemble.nc
     if not p.exists():
-        raise InputError(f"{flag} {str(path)!r}: neither a run folder nor a folder or file with ensemble.nc")
+        raise InputError(
+            f"{flag} = {str(path)!r}: neither a run folder nor a folder or file with ensemble.nc", arguments=(flag,)
+        )
     try:
         return open_ensemble(p, partial=partial)
     except InputError:
         raise
     except (OSError, ValueError, KeyError, RuntimeError) as exc:
         raise InputError(
-            f"{flag} {str(path)!r}: not a readable ensemble dataset ({' '.join(str(exc).split())})"
+            f"{flag} = {str(path)!r}: not a readable ensemble dataset ({' '.join(str(exc).split())})",
+            arguments=(flag,),
         ) from None
 
 

@@ -229,7 +229,7 @@ def test_ensemble_on_slurm_equals_local_bit_for_bit(slurm, tmp_path):
     assert status == 0
     assert len(list((tmp_path / "logs").glob("scatter-pop-*.err"))) >= 1  # SLURM jobs did it
     assert wait_for_no_jobs(20.0) == []
-    on_slurm = xr.load_dataset(tmp_path / "on_slurm" / "ensemble.nc")
+    on_slurm = xr.load_dataset(tmp_path / "on_slurm" / "ensemble.nc", mask_and_scale=False)  # codes as stored
     local = run_ensemble(spec, out=tmp_path / "local", workers=2, cluster=ClusterConfig(dashboard_port=0))
     assert on_slurm.sizes["system"] == local.sizes["system"] == 4
     assert np.array_equal(on_slurm["system"].values, local["system"].values)
