@@ -247,7 +247,8 @@ def _clean(x):
 
 def to_dict(j: Judgement) -> dict:
     """The judgement as plain JSON-ready values (NaN -> None), with verdicts and caveats."""
-    doc = dataclasses.asdict(j)
+    doc = dataclasses.asdict(j)  # "quality": energy_tolerance and include_capped
+    doc["energy_tolerance"] = j.quality.energy_tolerance  # where verdict.json had it before QualityCuts
     doc["units"] = {
         "a": "au",
         "msini": "Msun",

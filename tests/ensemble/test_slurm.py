@@ -249,7 +249,7 @@ def test_dry_run_prints_a_job_script_sbatch_accepts_and_refuses_the_walltime_the
     from scatter_pop.cli import main
 
     spec = tmp_path / "slurm.toml"
-    spec.write_text(_spec_with_cluster(tmp_path, "00:30:00"))
+    spec.write_text(_spec_with_cluster(tmp_path, "01:00:00"))
     out = tmp_path / "out"
     assert main(["run", str(spec), "--out", str(out), "--dry-run"]) == 0
     printed = capsys.readouterr().out
