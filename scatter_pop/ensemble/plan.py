@@ -9,7 +9,14 @@ A :class:`Plan` is made from the part files already on disk (:mod:`scatter_pop.s
   (``wall_seconds``) is below the spec's ``integration.wall_seconds_max`` (the cap was raised)
   continues up to it; with ``extend`` every capped system gets another ``wall_seconds_max`` on
   top of what it has used;
-* *retried* systems are failed ones when ``retry_failed`` is asked for.
+* *retried* systems are failed ones when ``retry_failed`` is asked for;
+* *carried further* systems are those stopped at the end time (end reason ``stopped_at_end_time``:
+  no stopping rule met, a snapshot) when the spec's end time is now later than the one they were
+  integrated towards (``t_limit``).  They continue from the final state kept in their checkpoint
+  file, with another ``wall_seconds_max`` on top of the time they have used; systems that settled
+  (a stopping rule ended them) are not touched.  Because checks fall on the same chunk boundaries
+  whatever the end time (:mod:`scatter_pop.engine.rebound_run`), the result equals a run made with
+  the later end time from the start.
 
 Continued and retried systems are recomputed per part and their rows replaced in that part.
 
@@ -36,7 +43,14 @@ from scatter_pop.ensemble.progress import Tally
 from scatter_pop.spec.reader import EnsembleSpec
 from scatter_pop.store.run_folder import Part, RunFolder, read_parts
 
-__all__ = ["Task", "Plan", "make_plan", "TARGET_TASK_SECONDS", "MAX_AUTO_BATCH", "CONSOLIDATE_PARTS"]
+__all__ = ["Task", "Plan", "make_plan", "end_time_of", "TARGET_TASK_SECONDS", "MAX_AUTO_BATCH", "CONSOLIDATE_PARTS"]
+
+
+def end_time_of(spec: EnsembleSpec, index: int) -> float:
+    """The end time (yr) system ``index`` is integrated towards under ``spec`` (as the engine computes it)."""
+    from scatter_pop.engine.initial_conditions import draw_system
+
+    return spec.integration.end_time_years(draw_system(spec, index).inner_period())
 
 TARGET_TASK_SECONDS = 60.0
 MAX_AUTO_BATCH = 100
@@ -79,6 +93,7 @@ class Plan:
         held = np.zeros(n, dtype=bool)
         self.redo: list[Task] = []
         self.kept_capped = 0
+        self.n_further = 0  # systems carried to a later end time
         cap = spec.integration.wall_seconds_max
         for p in parts:
             inside = p.data.sel(system=p.indices < n)
@@ -99,6 +114,11 @@ class Plan:
                     self.kept_capped += 1
             if retry_failed:
                 again.update({int(i): cap for i in idx[reason == int(EndReason.FAILED)]})
+            stopped = reason == int(EndReason.END_TIME)
+            for i, used, limit in zip(idx[stopped], spent[stopped], inside["t_limit"].values[stopped]):
+                if end_time_of(spec, int(i)) > limit:
+                    again[int(i)] = float(used) + cap
+                    self.n_further += 1
             if again:
                 order = sorted(again)
                 self.redo.append(Task(tuple(order), True, tuple(again[i] for i in order)))
@@ -184,8 +204,10 @@ class Plan:
     def summary(self) -> str:
         n = self.spec.run.systems
         words = [f"{self.n_new} new systems"]
-        if self.n_continue:
-            words.append(f"{self.n_continue} capped/failed systems again")
+        if self.n_further:
+            words.append(f"{self.n_further} systems carried from their end time to the later one")
+        if self.n_continue - self.n_further:
+            words.append(f"{self.n_continue - self.n_further} capped/failed systems again")
         text = (
             f"run folder {self.folder.path}: {self.tally.systems}/{n} systems on disk; computing "
             f"{' and '.join(words)}; batch size {self.batch_size or 'automatic'}"

@@ -97,6 +97,9 @@ class PlanetsSpec:
     radius: float | None  # AU
 
 
+END_KEYS = ("end_time", "end_orbits")  # the integration keys that set where a run ends
+
+
 @dataclass(frozen=True)
 class IntegrationSpec:
     integrator: str = "bs"
@@ -152,6 +155,25 @@ class EnsembleSpec:
         """SHA-256 of :meth:`identity` (canonical JSON)."""
         text = json.dumps(self.identity(), sort_keys=True, default=repr)
         return hashlib.sha256(text.encode()).hexdigest()
+
+    def lineage(self) -> dict:
+        """:meth:`identity` without the end time (``integration.end_time`` / ``end_orbits``): specs of
+        equal lineage integrate every system along the same trajectory, only for longer or shorter,
+        so a run folder's records carry over when the end time is raised."""
+        ident = self.identity()
+        for key in END_KEYS:
+            ident["integration"].pop(key)
+        return ident
+
+    def lineage_digest(self) -> str:
+        """SHA-256 of :meth:`lineage` (canonical JSON): what a run folder's part files belong to."""
+        text = json.dumps(self.lineage(), sort_keys=True, default=repr)
+        return hashlib.sha256(text.encode()).hexdigest()
+
+    def end_setting(self) -> tuple[str, float]:
+        """The end-time key in use and its value: ``("end_time", yr)`` or ``("end_orbits", orbits)``."""
+        integ = self.integration
+        return ("end_time", integ.end_time) if integ.end_time is not None else ("end_orbits", integ.end_orbits)
 
 
 # --------------------------------------------------------------------------- checking

@@ -156,8 +156,10 @@ def survivor_table(
     include_capped: bool = False,
     rescale_a: Range | None = None,
     circularise_tidal: bool = False,
+    settlement=None,
 ) -> dict[str, np.ndarray]:
-    """Surviving, bound planets of the systems that pass the quality cuts.
+    """Surviving (bound) planets of the systems that pass the quality cuts
+    (:func:`scatter_pop.store.schema.survivor_mask`, the package's one survivor definition).
 
     Parameters
     ----------
@@ -182,6 +184,8 @@ def survivor_table(
         Replace the orbits of tidal-circularisation candidates (``tidal_candidate``)
         by the circular orbit of equal angular momentum, a = a(1 − e²), e = 0
         (Ford & Rasio 2006: a_final ≈ 2q for e → 1).
+    settlement : Settlement or sequence of them, optional
+        Only systems of these settlement classes (default: all).
 
     Returns
     -------
@@ -203,9 +207,11 @@ def survivor_table(
         inner = np.min(np.where(a0 > 0, a0, np.inf), axis=1)  # systems without planets: inf
         scale = np.where(np.isfinite(inner), target / inner, np.nan)
     sin_i_all = _sky_sin_i(ds["inc_final"].values, ds["node_final"].values, los_rng)
-    keep = survivor_mask(ds, energy_tolerance=energy_tolerance, include_capped=include_capped).values
+    keep = np.asarray(
+        survivor_mask(ds, settlement, energy_tolerance=energy_tolerance, include_capped=include_capped).values,
+        dtype=bool,
+    )
     a_fin, e_fin = ds["a_final"].values, ds["e_final"].values
-    keep &= (a_fin > 0) & (e_fin >= 0) & (e_fin < 1)
     si, pj = np.nonzero(keep)
     mass = ds["mass_final"].values[si, pj]
     sin_i = sin_i_all[si, pj]

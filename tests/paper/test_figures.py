@@ -301,6 +301,8 @@ def test_figure_set_of_a_run_without_usable_systems(tmp_path):
     with warnings.catch_warnings():
         warnings.simplefilter("error")
         assert cli.main(["figures", str(run), "--format", "png", "--out", str(tmp_path / "f")]) == 0
-    assert all((tmp_path / "f" / f"{n}.png").is_file() for n in FIGURES)
+    # e against mass ratio is not drawn: no survivor, so no mass ratio that varies
+    assert all((tmp_path / "f" / f"{n}.png").is_file() for n in FIGURES if n != "e_vs_mass_ratio")
+    assert not (tmp_path / "f" / "e_vs_mass_ratio.png").exists()
     assert sum(int(r["count"]) for r in _read(tmp_path / "f" / "e_histogram_by_branch.csv")) == 0
     assert all(int(r["n"]) == 0 for r in _read(tmp_path / "f" / "branching_ratios.csv"))

@@ -209,14 +209,14 @@ def test_ensemble_seen_by_netcdf_c_ncdump(gathered):
     ).stdout
     assert 'e_final:units = "1"' in header and 'a_final:units = "au"' in header
     assert 't_fate:units = "yr"' in header and 'mass_initial:units = "Msun"' in header
-    assert 'fate:flag_meanings = "survived ejected merged hit_star tidally_disrupted"' in header
+    assert 'fate:flag_meanings = "survived ejected merged hit_star tidally_disrupted unbound_at_end"' in header
     assert "end_reason:flag_values = 0b, 1b, 2b, 3b, 4b, 5b" in header
     assert ":spec_toml = " in header and ":rebound_version = " in header
 
 
 def test_ensemble_seen_by_the_netcdf4_library(gathered):
     with netCDF4.Dataset(gathered.ensemble_path) as nc:
-        assert nc.variables["end_reason"].flag_meanings.split()[-2:] == ["wall_clock_cap", "failed"]
+        assert nc.variables["end_reason"].flag_meanings.split()[-2:] == ["stopped_by_wall_clock_cap", "failed"]
         assert nc.variables["q_final"].units == "au"
         assert nc.variables["e_final"].filters()["zlib"]
 
