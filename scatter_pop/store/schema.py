@@ -92,7 +92,8 @@ VARIABLES: tuple[Var, ...] = (
     Var("t_first_encounter", S, "f8", "yr", "time of the first separation below one mutual Hill radius"),
     Var("t_end", S, "f8", "yr", "time the integration stopped"),
     Var("end_reason", S, "i1", "1", "rule that ended the integration", flags=EndReason),
-    Var("t_limit", S, "f8", "yr", "end time the system was integrated towards"),
+    # the end time asked, not physics: a settled system keeps the one of the run that settled it
+    Var("t_limit", S, "f8", "yr", "end time the system was integrated towards", physics=False),
     Var(
         "settlement",
         S,
