@@ -30,6 +30,7 @@ __all__ = [
     "OutcomeSpec",
     "EnsembleSpec",
     "load_spec",
+    "with_systems",
     "parse_spec",
     "INTEGRATORS",
 ]
@@ -432,6 +433,28 @@ def parse_spec(text: str, source: str = "<spec>") -> EnsembleSpec:
 
     cluster = ClusterConfig.from_table(cluster_table)
     return EnsembleSpec(run, star, planets, integration, outcomes, cluster, text=text, source=source)
+
+
+def with_systems(spec: EnsembleSpec, systems: int) -> EnsembleSpec:
+    """The same spec with ``run.systems`` set to ``systems`` (its TOML text edited, so that the text
+    a run folder keeps parses back to it)."""
+    import re
+
+    if systems < 1:
+        raise InputError(f"run.systems {systems}: must be an integer >= 1")
+    text = spec.text
+    head = re.search(r"(?m)^\s*\[run\]\s*(#.*)?$", text)
+    if head is None:
+        raise InputError("spec: no [run] table to set run.systems in")
+    nxt = re.search(r"(?m)^\s*\[", text[head.end() :])
+    end = head.end() + (nxt.start() if nxt else len(text) - head.end())
+    body = text[head.end() : end]
+    line = re.compile(r"(?m)^(\s*systems\s*=\s*)[0-9_]+")
+    body = line.sub(lambda m: f"{m.group(1)}{systems}", body, count=1) if line.search(body) else f"\nsystems = {systems}" + body
+    out = parse_spec(text[: head.end()] + body + text[end:], spec.source or "<spec>")
+    if out.run.systems != systems or out.lineage_digest() != spec.lineage_digest():
+        raise InputError("spec: run.systems could not be set in its text; write it as `systems = N` in [run]")
+    return out
 
 
 def load_spec(path) -> EnsembleSpec:
