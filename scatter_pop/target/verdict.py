@@ -39,6 +39,11 @@ __all__ = [
 
 FLOOR = 1e-5  # fractions below this are shown as "< 0.001 %"
 RATE_BANDS = ((0.10, "a common outcome"), (0.01, "an uncommon but regular outcome"), (0.0, "a rare outcome"))
+_BAND_NAMES = {
+    "a common outcome": "common range (10 % and more)",
+    "an uncommon but regular outcome": "uncommon-but-regular range (1 % to 10 %)",
+    "a rare outcome": "rare range (below 1 %)",
+}
 
 
 def _pct(x: float, width: float | None = None) -> str:
@@ -145,13 +150,19 @@ def verdict_sentences(r: EnsembleJudgement, j: Judgement) -> list[str]:
         out.append(f"The whole interval lies in one band: {words}.")
     else:
         out.append(
-            f"The interval spans {rate_words(p.low)[2:]} to {rate_words(p.high)[2:]}: the data exclude "
-            f"rates below {_pct(p.low)} and above {_pct(p.high)}, and nothing more."
+            f"The interval reaches from the {_BAND_NAMES[rate_words(p.low)]} into the "
+            f"{_BAND_NAMES[rate_words(p.high)]}, so no single rate word fits: the data exclude rates below "
+            f"{_pct(p.low)} and above {_pct(p.high)}, and nothing more."
         )
     if r.settled_matches:
+        which = (
+            "the matching system is settled"
+            if p.k == 1
+            else f"{r.settled_matches} of the {p.k} matching systems are settled"
+        )
         out.append(
-            f"So scattering can produce such a planet from these initial conditions: {r.settled_matches} of "
-            f"the matching systems are settled, their outcome cannot change."
+            f"So scattering can produce such a planet from these initial conditions: {which}, an outcome "
+            f"that cannot change."
         )
     else:
         out.append(
