@@ -69,7 +69,11 @@ def configure(parser) -> None:
 def _until_options(args, spec):
     """The campaign flags, checked (None without --until-width)."""
     if args.until_width is None:
-        for flag, value in (("--target", args.target), ("--cpu-budget", args.cpu_budget), ("--max-systems", args.max_systems)):
+        for flag, value in (
+            ("--target", args.target),
+            ("--cpu-budget", args.cpu_budget),
+            ("--max-systems", args.max_systems),
+        ):
             if value is not None:
                 raise InputError(f"{flag} is only used with --until-width W")
         return None
@@ -134,7 +138,9 @@ def execute(args) -> int:
                 progress_interval=args.progress_every,
                 **options,
             )
-        print(f"done: {campaign.steps[-1].systems} systems in {run.out / 'ensemble.nc'} (stopped: {campaign.stopped_by})")
+        print(
+            f"done: {campaign.steps[-1].systems} systems in {run.out / 'ensemble.nc'} (stopped: {campaign.stopped_by})"
+        )
         return 0
     if args.dry_run:
         plan = run.plan()

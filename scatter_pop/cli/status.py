@@ -37,7 +37,9 @@ def _further_line(tally: Tally, spec, workers: int) -> str:
         costs = []
         for factor in (2, 10):
             cpu = rate * tally.open_years * (factor - 1)
-            costs.append(f"x{factor}: {format_duration(cpu)} CPU, ~{format_duration(cpu / workers)} on {workers} workers")
+            costs.append(
+                f"x{factor}: {format_duration(cpu)} CPU, ~{format_duration(cpu / workers)} on {workers} workers"
+            )
         text += f"; at their measured rate ({rate * 1e3:.3g} CPU ms per simulated yr) " + "; ".join(costs)
         text += " (an upper estimate: some will settle on the way)"
     return text

@@ -80,8 +80,8 @@ from scatter_pop.engine.outcome import NO_PLANET, EndReason, Fate, SystemRecord
 from scatter_pop.engine.rebound_setup import STAR_NAME, build_simulation, restore_simulation, simulation_blob
 from scatter_pop.engine.rebound_state import astrocentric_orbit, body_size, fate_entry, hybrid_step, state_arrays
 from scatter_pop.engine.record_builder import build_record, planet_index, planet_name
-from scatter_pop.engine.settlement import GAP_CHECKS, orbit_gap_hill
 from scatter_pop.engine.search_radii import set_escape_radius, set_search_radii, set_star_radius
+from scatter_pop.engine.settlement import GAP_CHECKS, orbit_gap_hill
 from scatter_pop.engine.stability import marchal_bozis_state_ratio, tidal_disruption_radius
 from scatter_pop.errors import InputError
 

@@ -121,9 +121,10 @@ def classify(
     (p_in, p_out) = sorted(present, key=lambda p: p.a_final)
     mu = [p_in.mass_final / star_mass, p_out.mass_final / star_mass]
     in_range = all(PETROVICH_MU_RANGE[0] <= x <= PETROVICH_MU_RANGE[1] for x in mu)
-    flat = math.degrees(
-        mutual_inclination(p_in.inc_final, p_in.node_final, p_out.inc_final, p_out.node_final)
-    ) <= PETROVICH_MAX_MUTUAL_INC_DEG
+    flat = (
+        math.degrees(mutual_inclination(p_in.inc_final, p_in.node_final, p_out.inc_final, p_out.node_final))
+        <= PETROVICH_MAX_MUTUAL_INC_DEG
+    )
     stable = bool(
         petrovich_2015_stable(
             star_mass, p_in.mass_final, p_out.mass_final, p_in.a_final, p_out.a_final, p_in.e_final, p_out.e_final

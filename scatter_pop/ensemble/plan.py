@@ -52,6 +52,7 @@ def end_time_of(spec: EnsembleSpec, index: int) -> float:
 
     return spec.integration.end_time_years(draw_system(spec, index).inner_period())
 
+
 TARGET_TASK_SECONDS = 60.0
 MAX_AUTO_BATCH = 100
 CONSOLIDATE_PARTS = 64

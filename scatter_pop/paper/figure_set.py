@@ -203,19 +203,19 @@ def write_figure_set(
         med = fd.binned_median(emr, "mass_ratio", "e", MASS_RATIO_EDGES)
         ratios = emr["mass_ratio"] if len(emr) else np.array([])
         if ratios.size and np.ptp(ratios) > 0:  # nothing to show when the mass ratio does not vary
-          written.append(
-            _per_ensemble(
-                out,
-                "e_vs_mass_ratio",
-                labels,
-                width,
-                formats,
-                {"": emr, "medians": med},
-                lambda ax, lab: fg.draw_e_vs_mass_ratio(
-                    ax, emr.where(ensemble=lab), med.where(ensemble=lab) if len(med) else None, title=lab
-                ),
+            written.append(
+                _per_ensemble(
+                    out,
+                    "e_vs_mass_ratio",
+                    labels,
+                    width,
+                    formats,
+                    {"": emr, "medians": med},
+                    lambda ax, lab: fg.draw_e_vs_mass_ratio(
+                        ax, emr.where(ensemble=lab), med.where(ensemble=lab) if len(med) else None, title=lab
+                    ),
+                )
             )
-        )
     latex = out / "outcomes_table.tex"
     latex.write_text(latex_table(branching, stats, confidence=confidence), encoding="utf-8")
     return FigureSet(tuple(written), latex, out / "branching_ratios.csv")

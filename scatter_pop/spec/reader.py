@@ -450,7 +450,11 @@ def with_systems(spec: EnsembleSpec, systems: int) -> EnsembleSpec:
     end = head.end() + (nxt.start() if nxt else len(text) - head.end())
     body = text[head.end() : end]
     line = re.compile(r"(?m)^(\s*systems\s*=\s*)[0-9_]+")
-    body = line.sub(lambda m: f"{m.group(1)}{systems}", body, count=1) if line.search(body) else f"\nsystems = {systems}" + body
+    body = (
+        line.sub(lambda m: f"{m.group(1)}{systems}", body, count=1)
+        if line.search(body)
+        else f"\nsystems = {systems}" + body
+    )
     out = parse_spec(text[: head.end()] + body + text[end:], spec.source or "<spec>")
     if out.run.systems != systems or out.lineage_digest() != spec.lineage_digest():
         raise InputError("spec: run.systems could not be set in its text; write it as `systems = N` in [run]")

@@ -102,7 +102,9 @@ VARIABLES: tuple[Var, ...] = (
         "whether the outcome is final (rule in the global attribute settlement_rule)",
         flags=Settlement,
     ),
-    Var("hill_ratio", S, "f8", "1", "exact Marchal-Bozis Hill-stability ratio of a pair at the end (NaN: not 2 planets)"),
+    Var(
+        "hill_ratio", S, "f8", "1", "exact Marchal-Bozis Hill-stability ratio of a pair at the end (NaN: not 2 planets)"
+    ),
     Var(
         "recent_gap",
         S,
@@ -166,7 +168,18 @@ def records_to_dataset(records: list[SystemRecord], n_planets: int) -> xr.Datase
             ("n_star", (Fate.HIT_STAR, Fate.DISRUPTED)),
         ):
             data[name][i] = FILL_INT if failed else sum(r.count(f) for f in fates)
-        for name in ("t_limit", "hill_ratio", "recent_gap", "t_first_encounter", "t_end", "energy_error", "angmom_error", "steps", "wall_seconds", "attempts"):
+        for name in (
+            "t_limit",
+            "hill_ratio",
+            "recent_gap",
+            "t_first_encounter",
+            "t_end",
+            "energy_error",
+            "angmom_error",
+            "steps",
+            "wall_seconds",
+            "attempts",
+        ):
             data[name][i] = getattr(r, name)
     ds = xr.Dataset(
         {v.name: (v.dims, data[v.name], _attrs(v)) for v in VARIABLES},

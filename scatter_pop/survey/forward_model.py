@@ -31,7 +31,7 @@ import numpy as np
 import xarray as xr
 
 from scatter_pop.constants import DAY_S, MJUP_MSUN, YEAR_S
-from scatter_pop.engine.outcome import EndReason
+from scatter_pop.engine.outcome import EndReason, Settlement
 from scatter_pop.errors import InputError
 from scatter_pop.store.schema import ENERGY_TOLERANCE_DEFAULT, quality_mask, survivor_mask
 from scatter_pop.survey.cuts import CutLog, Range, SampleCuts
@@ -194,7 +194,8 @@ def survivor_table(
         ``mass`` [M_sun], ``sin_i``, ``msini`` [M_sun], ``a`` [AU], ``e``,
         ``q`` [AU], ``inc`` [rad, to the initial reference plane], ``period``
         [yr], ``K`` [m/s], ``m_star`` [M_sun], ``scale`` (rescaling factor),
-        ``tidal`` (bool: tidal-circularisation candidate).
+        ``tidal`` (bool: tidal-circularisation candidate), ``settlement`` (the system's
+        :class:`~scatter_pop.engine.outcome.Settlement` code).
     """
     rng = np.random.default_rng(rng)
     los_rng, scale_rng = rng.spawn(2)
@@ -241,6 +242,7 @@ def survivor_table(
         "m_star": np.full(si.size, m_star),
         "scale": f,
         "tidal": tidal,
+        "settlement": ds["settlement"].values[si].astype(np.int64),
     }
 
 
@@ -365,6 +367,12 @@ def simulated_sample(
         notes += (
             f"{int(table['tidal'].sum())} tidal-circularisation candidates given the circular orbit "
             "of equal angular momentum (a -> a(1 - e^2), e -> 0) before the cuts",
+        )
+    snapshots = int(np.sum(keep & (table["settlement"] == int(Settlement.UNSETTLED))))
+    if snapshots:
+        notes += (
+            f"{snapshots} of the {int(keep.sum())} simulated planets are in unsettled systems (snapshots at the "
+            "end time whose orbits may still change; raise the end time to carry them further)",
         )
     return SimulatedSample(
         label=label, table={k: v[keep] for k, v in table.items()}, log=log, excluded=excluded, notes=notes

@@ -156,7 +156,9 @@ def run_until(
     while True:
         round_spec = with_systems(spec, n)
         ds = EnsembleRun(round_spec, out, log=log, fresh=fresh and not steps, **run_options).run()
-        result = judge([ds], target, windows, labels=[spec.run.name], seed=spec.run.seed, confidence=confidence, method=method)
+        result = judge(
+            [ds], target, windows, labels=[spec.run.name], seed=spec.run.seed, confidence=confidence, method=method
+        )
         p = result.ensembles[0].systems
         cpu = float(ds["wall_seconds"].sum())
         step = CampaignStep(n, p.k, p.n, p.fraction, p.low, p.high, cpu)
@@ -183,6 +185,10 @@ def run_until(
                 stopped = "cpu_budget"
                 break
         n = next_size(n, step.width, width, max_systems=max_systems, affordable=affordable)
-    words = {"width": "the interval is as narrow as asked", "cpu_budget": "the CPU budget is spent", "max_systems": "the largest ensemble allowed is reached"}
+    words = {
+        "width": "the interval is as narrow as asked",
+        "cpu_budget": "the CPU budget is spent",
+        "max_systems": "the largest ensemble allowed is reached",
+    }
     log(f"[until] stopped at {n} systems: {words[stopped]}")
     return Campaign(tuple(steps), stopped, ds, result)

@@ -375,9 +375,7 @@ def judge_frame(
         excluded=dict(frame.excluded),
         systems=prop(np.sum(sys_match & final), n_final),
         survivors=prop(np.sum(match & s_final), np.sum(s_final)),
-        weighted_systems=_bootstrap(
-            (w_sys,), _mean, n=n_final, confidence=confidence, resamples=resamples, rng=rng
-        ),
+        weighted_systems=_bootstrap((w_sys,), _mean, n=n_final, confidence=confidence, resamples=resamples, rng=rng),
         weighted_survivors=_bootstrap(
             (w_sum[final], frame.n_survivors[final].astype(float)),
             _ratio,

@@ -87,7 +87,9 @@ def interval_words(low: float, high: float) -> str | None:
 
 def _interval(p) -> str:
     width = p.high - p.low
-    return f"{_pct(p.fraction, width)} ({100 * p.confidence:g} % {p.method_name} interval {_pct(p.low)} to {_pct(p.high)})"
+    return (
+        f"{_pct(p.fraction, width)} ({100 * p.confidence:g} % {p.method_name} interval {_pct(p.low)} to {_pct(p.high)})"
+    )
 
 
 def describe_target(j: Judgement) -> list[str]:

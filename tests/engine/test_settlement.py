@@ -107,7 +107,9 @@ def test_orbit_gap_and_mutual_inclination_helpers():
     assert orbit_gap_hill(1.0, 2e-3, 1e-3, 8.0, 0.2, 5.0, 0.1) == pytest.approx(0.9 / r_h, rel=1e-12)
     # the angle between orbit normals from their vectors (numpy), common practice
     i1, n1, i2, n2 = 0.3, 1.0, 0.5, 2.5
-    v = [np.array([math.sin(i) * math.sin(n), -math.sin(i) * math.cos(n), math.cos(i)]) for i, n in ((i1, n1), (i2, n2))]
+    v = [
+        np.array([math.sin(i) * math.sin(n), -math.sin(i) * math.cos(n), math.cos(i)]) for i, n in ((i1, n1), (i2, n2))
+    ]
     assert mutual_inclination(i1, n1, i2, n2) == pytest.approx(math.acos(v[0] @ v[1]), rel=1e-12)
 
 

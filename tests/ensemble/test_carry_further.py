@@ -79,7 +79,10 @@ def test_lowered_end_time_or_another_change_is_refused_and_nothing_changes(carri
     for text, named in (
         (spec_text(systems=N, end_time=T1, extra=EXTRA), "integration.end_time = 600.0"),
         (spec_text(systems=N, end_time=T2, extra=EXTRA + "epsilon = 1e-8\n"), "integration.epsilon"),
-        (spec_text(systems=N, end_time=T2, extra=EXTRA).replace("end_time = 1500.0", "end_orbits = 500.0"), "end_orbits"),
+        (
+            spec_text(systems=N, end_time=T2, extra=EXTRA).replace("end_time = 1500.0", "end_orbits = 500.0"),
+            "end_orbits",
+        ),
     ):
         spec = tmp_path / "other.toml"
         spec.write_text(text)

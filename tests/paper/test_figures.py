@@ -359,7 +359,9 @@ def test_unsettled_category_is_drawn_with_its_own_colour_and_legend(tmp_path):
         drawing.draw_e_histogram(axes[0, 0], figure_data.e_histogram_by_branch([("m", ds)]))
         labels = [t.get_text() for t in axes[0, 0].get_legend().get_texts()]
         assert BRANCH_LABELS["unsettled"] in labels
-        grey = [p for p in axes[0, 0].patches if mcolors.same_color(p.get_facecolor(), drawing.BRANCH_STYLE["unsettled"][0])]
+        grey = [
+            p for p in axes[0, 0].patches if mcolors.same_color(p.get_facecolor(), drawing.BRANCH_STYLE["unsettled"][0])
+        ]
         assert grey and all(
             not mcolors.same_color(drawing.BRANCH_STYLE["unsettled"][0], drawing.BRANCH_STYLE[b][0])
             for b in drawing.BRANCH_STYLE

@@ -60,9 +60,7 @@ def client():
 def campaign(client, tmp_path_factory):
     out = tmp_path_factory.mktemp("until") / "run"
     lines = []
-    result = run_until(
-        parse_spec(SPEC), out, target_from_flags(**TARGET), width=WIDTH, client=client, log=lines.append
-    )
+    result = run_until(parse_spec(SPEC), out, target_from_flags(**TARGET), width=WIDTH, client=client, log=lines.append)
     return out, result, lines
 
 
@@ -139,7 +137,9 @@ def test_next_size_follows_the_binomial_scaling():
 def test_campaign_flags_are_checked_before_anything_runs(tmp_path, capsys, flags, named):
     spec = tmp_path / "spec.toml"
     spec.write_text(SPEC)
-    (tmp_path / "t.toml").write_text("[target]\ne = 0.1\ne_err = 0.01\na = 1.0\na_err = 0.1\nmsini = 1.0\nmsini_err = 0.1\n")
+    (tmp_path / "t.toml").write_text(
+        "[target]\ne = 0.1\ne_err = 0.01\na = 1.0\na_err = 0.1\nmsini = 1.0\nmsini_err = 0.1\n"
+    )
     args = [a if a != "t.toml" else str(tmp_path / "t.toml") for a in flags]
     assert main(["run", str(spec), "--out", str(tmp_path / "out"), *args]) == 2
     err = capsys.readouterr().err

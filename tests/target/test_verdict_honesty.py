@@ -51,7 +51,11 @@ def _unsettled(i, match):
 
 def _ensemble(settled_k, settled_n, unsettled_k=0, unsettled_n=0, likely_k=0, likely_n=0):
     recs, i = [], 0
-    for maker, k, n in ((_settled, settled_k, settled_n), (_likely, likely_k, likely_n), (_unsettled, unsettled_k, unsettled_n)):
+    for maker, k, n in (
+        (_settled, settled_k, settled_n),
+        (_likely, likely_k, likely_n),
+        (_unsettled, unsettled_k, unsettled_n),
+    ):
         for j in range(n):
             recs.append(maker(i, j < k))
             i += 1
