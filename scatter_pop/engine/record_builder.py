@@ -41,9 +41,9 @@ def build_record(
     steps: int,
     integrator: str,
     circularisation_q: float,
-    star_mass: float,
-    t_limit: float,
-    hill_margin: float,
+    star_mass: float | None = None,
+    t_limit: float = math.nan,
+    hill_margin: float = 1.01,
     hill_ratio: float = math.nan,
     recent_gap: float = math.nan,
 ) -> SystemRecord:
@@ -68,12 +68,12 @@ def build_record(
     integrator : str
     circularisation_q : float
         Survivors with pericentre below this (AU) are flagged as tidal candidates.
-    star_mass : float
-        The star's mass at the end (M_sun), for the settlement class.
+    star_mass : float, optional
+        The star's mass at the end (M_sun), for the settlement class (default: the initial one).
     t_limit : float
-        The end time the system was integrated towards (yr).
+        The end time the system was integrated towards (yr); NaN: not continuable to a later one.
     hill_margin : float
-        ``integration.hill_margin``.
+        ``integration.hill_margin`` (default: the spec's default).
     hill_ratio, recent_gap : float
         Exact Hill ratio of a pair at the end and the smallest recent osculating gap (mutual Hill
         radii), see :mod:`scatter_pop.engine.settlement`.
@@ -113,7 +113,12 @@ def build_record(
     l_now = np.asarray(angmom, dtype=float) + np.asarray(ledger.angmom_removed)
     l0 = np.asarray(ledger.l0)
     settlement = classify(
-        reason, planets, star_mass, hill_ratio=hill_ratio, recent_gap=recent_gap, hill_margin=hill_margin
+        reason,
+        planets,
+        initial.star_mass if star_mass is None else star_mass,
+        hill_ratio=hill_ratio,
+        recent_gap=recent_gap,
+        hill_margin=hill_margin,
     )
     return SystemRecord(
         index=initial.index,

@@ -15,7 +15,7 @@ Fault handling
   :func:`~scatter_pop.engine.initial_conditions.draw_system`, final values missing, ``attempts`` = deaths.
 * A system whose integration raises is likewise isolated and recorded as failed; its traceback
   goes to ``DIR/failures.log``.  ``retry_failed=True`` computes failed systems again.
-* A system stopped by the wall-clock cap (end reason ``wall_clock_cap``) leaves a REBOUND
+* A system stopped by the wall-clock cap (end reason ``stopped_by_wall_clock_cap``) leaves a REBOUND
   checkpoint in ``DIR/checkpoints/``; it is continued from there by ``extend=True`` (another
   ``wall_seconds_max`` on top of the time it has used) or by a rerun whose
   ``integration.wall_seconds_max`` exceeds the time it has used (see :mod:`scatter_pop.ensemble.plan`).

@@ -4,7 +4,7 @@ A :class:`Plan` is made from the part files already on disk (:mod:`scatter_pop.s
 
 * *new* systems are the indices ``0 .. run.systems-1`` that no part holds; they are cut into
   batches of consecutive indices, each written as a new part when it finishes;
-* *continued* systems are capped ones (end reason ``wall_clock_cap``).  The cap is a budget of
+* *continued* systems are capped ones (end reason ``stopped_by_wall_clock_cap``).  The cap is a budget of
   wall-clock seconds per system, counted over all its runs: a capped system whose time so far
   (``wall_seconds``) is below the spec's ``integration.wall_seconds_max`` (the cap was raised)
   continues up to it; with ``extend`` every capped system gets another ``wall_seconds_max`` on
@@ -48,6 +48,8 @@ __all__ = ["Task", "Plan", "make_plan", "end_time_of", "TARGET_TASK_SECONDS", "M
 
 def end_time_of(spec: EnsembleSpec, index: int) -> float:
     """The end time (yr) system ``index`` is integrated towards under ``spec`` (as the engine computes it)."""
+    if spec.integration.end_time is not None:  # the same for every system
+        return spec.integration.end_time
     from scatter_pop.engine.initial_conditions import draw_system
 
     return spec.integration.end_time_years(draw_system(spec, index).inner_period())

@@ -211,9 +211,11 @@ def draw_a_e(ax, points: Table, lines: Table, *, target: Table | None = None, ti
     for q in dict.fromkeys(lines["q_au"].tolist()):
         rows = lines.where(q_au=q)
         ax.plot(rows["a_au"], rows["e"], color="0.6", lw=0.6, ls="--", zorder=1)
-        a_end, e_end = float(rows["a_au"][-1]), float(rows["e"][-1])
-        if 0.03 < e_end < 0.97:  # label at the right end of the line
-            ax.annotate(f"q={q:g} AU", (a_end, e_end), fontsize=5, color="0.35", ha="right", va="bottom")
+        k = int(np.argmin(np.abs(rows["e"] - 0.55)))  # label where the line is nearest mid-height
+        if 0.03 < float(rows["e"][k]) < 0.97:
+            ax.annotate(
+                f"q={q:g} AU", (float(rows["a_au"][k]), float(rows["e"][k])), fontsize=5, color="0.35", ha="left"
+            )
     for b in BRANCHES:
         rows = points.where(branch=b)
         if len(rows):
@@ -304,7 +306,7 @@ def draw_branching(ax, table: Table) -> None:
         handles, labels = ax.get_legend_handles_labels()
         handles.append(Patch(facecolor="white", edgecolor=BRANCH_STYLE["unsettled"][0], hatch=UNSETTLED_HATCH))
         labels.append("unsettled: a snapshot at the end time, not an outcome")
-        ax.legend(handles, labels, loc="upper right")
+        ax.legend(handles, labels, loc="upper left")
     else:
         _legend(ax, loc="upper right")
     ax.set_xticks(x0, [BRANCH_LABELS[b].replace(" ", "\n", 1) for b in BRANCHES], fontsize=6)
@@ -328,7 +330,7 @@ def draw_instability(ax, table: Table) -> None:
         )
         if len(rows):
             lo, hi = float(rows["t_limit_min_yr"][0]), float(rows["t_limit_max_yr"][0])
-            if hi > lo * (1 + 1e-9):
+            if hi > lo * 1.05:  # a band only when it can be seen on the log axis
                 ax.axvspan(lo, hi, color=colour, alpha=0.15, lw=0, label=f"end of the integrations ({ens})")
             else:
                 ax.axvline(hi, color=colour, lw=0.9, ls=":", label=f"end of the integrations ({ens})")
@@ -360,7 +362,7 @@ def draw_e_vs_mass_ratio(ax, points: Table, medians: Table | None = None, *, tit
             ms=3,
             lw=0.9,
             capsize=1.5,
-            label="median, 16-84 %",
+            label="median of settled + likely stable, 16-84 %",
         )
     ax.set_xlim(0.0, 1.02)
     ax.set_ylim(0.0, 1.0)

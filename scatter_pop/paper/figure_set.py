@@ -13,8 +13,8 @@ Figures (file stems):
 ``a_e_plane``              survivors in the a–e plane, lines of constant pericentre, the target
 ``branching_ratios``       fraction of systems per branch with binomial error bars
 ``instability_times``      CDF of the time of the first close encounter
-``e_vs_mass_ratio``        final e against the initial mass ratio, binned medians (only when the
-                           mass ratio varies among the survivors' systems)
+``e_vs_mass_ratio``        final e against the initial mass ratio, binned medians of the settled and
+                           likely-stable survivors (only when the mass ratio varies)
 
 Unsettled systems (snapshots at the end time) are their own branch in every figure.
 """
@@ -200,7 +200,8 @@ def write_figure_set(
         written.append(_write(out, "instability_times", fig, {"": inst}, formats))
 
         emr = fd.e_vs_mass_ratio(runs, **quality)
-        med = fd.binned_median(emr, "mass_ratio", "e", MASS_RATIO_EDGES)
+        final = fd.Table({k: v[emr["branch"] != "unsettled"] for k, v in emr.columns.items()}) if len(emr) else emr
+        med = fd.binned_median(final, "mass_ratio", "e", MASS_RATIO_EDGES)  # outcomes only, not snapshots
         ratios = emr["mass_ratio"] if len(emr) else np.array([])
         if ratios.size and np.ptp(ratios) > 0:  # nothing to show when the mass ratio does not vary
             written.append(

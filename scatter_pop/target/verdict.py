@@ -63,6 +63,11 @@ def _pct(x: float, width: float | None = None) -> str:
     return f"{text} %"
 
 
+def _count(x: float) -> str:
+    """An expected number of matches: two significant figures, "< 0.001" below that."""
+    return "0" if x == 0 else ("< 0.001" if x < 1e-3 else f"{x:.2g}")
+
+
 def _num(x: float, unit: str = "") -> str:
     if x is None or not math.isfinite(x):
         return "n/a"
@@ -118,8 +123,9 @@ def verdict_sentences(r: EnsembleJudgement, j: Judgement) -> list[str]:
     conf = f"{100 * p.confidence:g} %"
     n_u, k_u = r.by_class["unsettled"].n, r.by_class["unsettled"].k
     snapshots = (
-        f"{k_u} of the {n_u} unsettled systems show such a planet at the end time, but they are snapshots "
-        f"that may still change and are not counted."
+        f"{k_u} of the {n_u} unsettled systems {'shows' if k_u == 1 else 'show'} such a planet at the end "
+        f"time, but {'it is a snapshot' if k_u == 1 else 'they are snapshots'} that may still change and "
+        f"{'is' if k_u == 1 else 'are'} not counted."
         if k_u
         else None
     )
@@ -237,7 +243,8 @@ def caveats(r: EnsembleJudgement, j: Judgement) -> list[str]:
             f"further"
         )
         if r.pathways.unsettled_matching:
-            text += f" ({r.pathways.unsettled_matching} of them show a planet like {t.name} at the end time)"
+            k = r.pathways.unsettled_matching
+            text += f" ({k} of them {'shows' if k == 1 else 'show'} a planet like {t.name} at the end time)"
         out.append(text + ".")
     if r.pathways.tidal_candidates:
         out.append(
@@ -295,7 +302,7 @@ def _ensemble_lines(r: EnsembleJudgement, j: Judgement) -> list[str]:
         width = q.high - q.low if q.resamples else None
         lines.append(
             f"  {word:<10}{_pct(q.value, width):>17}   bootstrap {conf}: {_pct(q.low)} to "
-            f"{_pct(q.high)}; expected matches {q.expected:.2g}"
+            f"{_pct(q.high)}; expected matches {_count(q.expected)}"
         )
     lines.append("verdict: " + verdict_sentence(r, j))
     if pw.n_matching == 0:

@@ -103,7 +103,7 @@ def test_each_sentence_follows_its_interval(settled_k, settled_n, unsettled_k, u
     sentences = verdict_sentences(r, j)
     text = _check_sentences(sentences, settled_k, settled_n, settled_k)
     if unsettled_k:
-        assert f"{unsettled_k} of the {unsettled_n} unsettled systems" in text and "not counted" in text
+        assert f"{unsettled_k} of the {unsettled_n} unsettled systems show" in text and "not counted" in text
     if settled_k == 0:
         assert "fewer than" in text and "not excluded" in text
     if settled_k == 1:  # 1 of 240: the interval runs from 0.011 % to 2.3 %
