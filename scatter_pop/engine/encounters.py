@@ -15,7 +15,7 @@ import math
 
 import numpy as np
 
-from scatter_pop.engine.stability import tidal_disruption_radius
+from scatter_pop.engine.stability import mutual_hill_radius, tidal_disruption_radius
 
 __all__ = [
     "relative_orbit",
@@ -26,7 +26,6 @@ __all__ = [
     "classify_star_pass",
     "pericentre_timescale",
     "encounter_radii",
-    "mutual_hill_radius_now",
 ]
 
 
@@ -212,15 +211,6 @@ def pericentre_timescale(gm, a, e):
     return 2.0 * math.pi * math.sqrt(q**3 / (gm * (1.0 + e)))
 
 
-def mutual_hill_radius_now(m_star, m1, m2, size1, size2):
-    """Mutual Hill radius from the current sizes of two orbits (AU).
-
-    ``size`` is the osculating astrocentric semi-major axis when bound, else the
-    current distance from the star.
-    """
-    return math.cbrt((m1 + m2) / (3.0 * m_star)) * 0.5 * (size1 + size2)
-
-
 def encounter_radii(m_star, masses, sizes, margin=1.25):
     """Search radii that flag every pair closer than one mutual Hill radius.
 
@@ -233,7 +223,8 @@ def encounter_radii(m_star, masses, sizes, margin=1.25):
     m_star : float
         M_sun.
     masses, sizes : sequences
-        Planet masses (M_sun) and orbit sizes (AU, see :func:`mutual_hill_radius_now`).
+        Planet masses (M_sun) and orbit sizes (AU): the osculating astrocentric semi-major axis
+        when bound, else the current distance from the star.
     margin : float
         Allowance for orbit sizes changing between updates.
     """
@@ -241,7 +232,7 @@ def encounter_radii(m_star, masses, sizes, margin=1.25):
     out = []
     for k in range(n):
         big = max(
-            (mutual_hill_radius_now(m_star, masses[k], masses[j], sizes[k], sizes[j]) for j in range(n) if j != k),
+            (mutual_hill_radius(m_star, masses[k], masses[j], sizes[k], sizes[j]) for j in range(n) if j != k),
             default=0.0,
         )
         out.append(0.5 * margin * big)

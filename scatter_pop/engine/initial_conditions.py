@@ -40,6 +40,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from scatter_pop.constants import G_AU_YR_MSUN
+from scatter_pop.engine.stability import hill_factor
 from scatter_pop.errors import InputError
 
 __all__ = [
@@ -175,7 +176,7 @@ def spaced_semi_major_axes(a_inner: float, spacings, masses, star_mass: float) -
     """
     a = [float(a_inner)]
     for i, delta in enumerate(spacings):
-        half = 0.5 * delta * math.cbrt((masses[i] + masses[i + 1]) / (3.0 * star_mass))
+        half = 0.5 * delta * hill_factor(star_mass, masses[i], masses[i + 1])
         if half >= 1.0:
             raise InputError(
                 f"planets.spacing = {delta!r} mutual Hill radii between planets {i} and {i + 1}: "

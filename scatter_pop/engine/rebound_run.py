@@ -73,7 +73,6 @@ from scatter_pop.engine.encounters import (
     classify_star_pass,
     line_min_distance,
     merge_jump,
-    mutual_hill_radius_now,
 )
 from scatter_pop.engine.ledger import FateEntry, Ledger, read_checkpoint, write_checkpoint
 from scatter_pop.engine.outcome import NO_PLANET, EndReason, Fate, SystemRecord
@@ -82,7 +81,7 @@ from scatter_pop.engine.rebound_state import astrocentric_orbit, body_size, fate
 from scatter_pop.engine.record_builder import build_record, planet_index, planet_name
 from scatter_pop.engine.search_radii import set_escape_radius, set_search_radii, set_star_radius
 from scatter_pop.engine.settlement import GAP_CHECKS, orbit_gap_hill
-from scatter_pop.engine.stability import marchal_bozis_state_ratio, tidal_disruption_radius
+from scatter_pop.engine.stability import marchal_bozis_state_ratio, mutual_hill_radius, tidal_disruption_radius
 from scatter_pop.errors import InputError
 
 __all__ = ["SystemRun", "STAR_NAME"]
@@ -185,7 +184,7 @@ class SystemRun:
         else:
             d_min = line_min_distance(dx, dv, self.sim.dt_last_done)
         if not self.ledger.encounter_found:  # sampled at step ends (no extrapolation)
-            r_hill = mutual_hill_radius_now(ps[0].m, ps[i].m, ps[j].m, body_size(self.sim, i), body_size(self.sim, j))
+            r_hill = mutual_hill_radius(ps[0].m, ps[i].m, ps[j].m, body_size(self.sim, i), body_size(self.sim, j))
             if float(np.linalg.norm(dx)) < r_hill:
                 self.ledger.t_first_encounter = float(self.sim.t)
                 self._set_search_radii()

@@ -23,11 +23,14 @@ AU, velocities in AU/yr, G in AU^3 yr^-2 M_sun^-1.
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 __all__ = [
     "mutual_hill_radius",
     "hill_spacing",
+    "hill_factor",
     "gladman_circular_critical_delta",
     "gladman_circular_critical_spacing",
     "hill_stable_circular",
@@ -45,8 +48,23 @@ _THREE_43 = 3.0 ** (4.0 / 3.0)
 
 
 # --------------------------------------------------------------------------- Hill radii
+def hill_factor(m_star, m1, m2):
+    """[(m1+m2)/(3 M*)]^(1/3): the mutual Hill radius in units of the mean semi-major axis.
+
+    Python numbers take ``math.cbrt`` (the engine calls this per pair and chunk), arrays ``np.cbrt``;
+    both round the same way.
+    """
+    if isinstance(m_star, float | int) and isinstance(m1, float | int) and isinstance(m2, float | int):
+        return math.cbrt((m1 + m2) / (3.0 * m_star))
+    return np.cbrt((np.asarray(m1, dtype=float) + m2) / (3.0 * np.asarray(m_star, dtype=float)))
+
+
 def mutual_hill_radius(m_star, m1, m2, a1, a2):
-    """Mutual Hill radius R_H,m = [(m1+m2)/(3 M*)]^(1/3) (a1+a2)/2.
+    """Mutual Hill radius R_H,m = [(m1+m2)/(3 M*)]^(1/3) (a1+a2)/2 (Chambers, Wetherill & Boss 1996).
+
+    The one definition in the package: the spacing of the initial conditions, the engine's
+    first-encounter radius (with the orbits' current sizes for a1, a2) and the starting
+    configurations of finished runs all use it.
 
     Parameters
     ----------
@@ -60,7 +78,9 @@ def mutual_hill_radius(m_star, m1, m2, a1, a2):
     float or array
         R_H,m in AU.
     """
-    return np.cbrt((np.asarray(m1) + m2) / (3.0 * np.asarray(m_star))) * 0.5 * (np.asarray(a1) + a2)
+    if isinstance(a1, float | int) and isinstance(a2, float | int):
+        return hill_factor(m_star, m1, m2) * 0.5 * (a1 + a2)
+    return hill_factor(m_star, m1, m2) * 0.5 * (np.asarray(a1, dtype=float) + a2)
 
 
 def hill_spacing(m_star, m1, m2, a1, a2):

@@ -58,7 +58,13 @@ def _count_table(report: ComparisonReport) -> tuple[list[str], list[str], list[l
 
 
 def _spread_dict(s: ResampledComparison | None):
-    return None if s is None else asdict(s)
+    """The resampled spreads by their percentiles (each spread's ``n`` is ``draws``, stated once)."""
+    if s is None:
+        return None
+    out = asdict(s)
+    for name in ("ks_statistic", "ks_pvalue", "ad_statistic", "ad_pvalue"):
+        out[name] = {f: out[name][f] for f in _SPREAD_FIELDS}
+    return out
 
 
 def report_to_dict(report: ComparisonReport) -> dict:

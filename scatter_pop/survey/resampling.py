@@ -20,7 +20,7 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.special
 
-from scatter_pop.survey.statistics import TwoSampleResult, two_sample
+from scatter_pop.survey.statistics import Spread, TwoSampleResult, two_sample
 
 __all__ = [
     "Spread",
@@ -31,21 +31,6 @@ __all__ = [
 ]
 
 _E_MAX = float(np.nextafter(1.0, 0.0))  # largest eccentricity below 1
-
-
-@dataclass(frozen=True)
-class Spread:
-    """Median and 16th / 84th percentiles of a resampled quantity."""
-
-    median: float
-    p16: float
-    p84: float
-
-    @classmethod
-    def of(cls, values) -> Spread:
-        v = np.asarray(values, dtype=float)
-        lo, med, hi = np.percentile(v, [16.0, 50.0, 84.0])
-        return cls(median=float(med), p16=float(lo), p84=float(hi))
 
 
 @dataclass(frozen=True)

@@ -26,6 +26,7 @@ import numpy as np
 import scipy.stats
 
 __all__ = [
+    "Spread",
     "TwoSampleResult",
     "two_sample",
     "ks_critical_coefficient",
@@ -39,6 +40,29 @@ __all__ = [
     "one_sample",
     "fit_beta",
 ]
+
+
+@dataclass(frozen=True)
+class Spread:
+    """Median and 16th / 84th percentiles of the finite values of a sample, with their number.
+
+    The 16–84 % range is the central 68 % (±1σ for a normal law; common practice).  NaN and
+    infinite values are left out; with none left every field is NaN and ``n`` is 0.
+    """
+
+    median: float
+    p16: float
+    p84: float
+    n: int
+
+    @classmethod
+    def of(cls, values) -> Spread:
+        v = np.asarray(values, dtype=float)
+        v = v[np.isfinite(v)]
+        if v.size == 0:
+            return cls(math.nan, math.nan, math.nan, 0)
+        p16, med, p84 = np.percentile(v, [16.0, 50.0, 84.0])
+        return cls(median=float(med), p16=float(p16), p84=float(p84), n=int(v.size))
 
 
 @dataclass(frozen=True)

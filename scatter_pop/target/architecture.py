@@ -16,7 +16,9 @@ from __future__ import annotations
 import numpy as np
 import xarray as xr
 
-__all__ = ["planet_count", "mass_ratio", "min_spacing", "mutual_hill_spacing"]
+from scatter_pop.engine.stability import hill_spacing
+
+__all__ = ["planet_count", "mass_ratio", "min_spacing"]
 
 
 def planet_count(ds: xr.Dataset) -> np.ndarray:
@@ -32,28 +34,6 @@ def mass_ratio(ds: xr.Dataset) -> np.ndarray:
     m = np.where(ds["mass_initial"].values > 0, ds["mass_initial"].values, np.nan)
     with np.errstate(invalid="ignore"):
         return np.nanmin(m, axis=1) / np.nanmax(m, axis=1)
-
-
-def mutual_hill_spacing(a_in, a_out, m_in, m_out, m_star):
-    """Separation of two orbits in mutual Hill radii.
-
-    Parameters
-    ----------
-    a_in, a_out : array_like
-        Semi-major axes [AU] of the inner and outer planet.
-    m_in, m_out : array_like
-        Planet masses [M_sun].
-    m_star : float
-        Stellar mass [M_sun].
-
-    Returns
-    -------
-    numpy.ndarray
-        (a_out − a_in) / R_H,m, dimensionless.
-    """
-    a_in, a_out = np.asarray(a_in, float), np.asarray(a_out, float)
-    r_h = ((np.asarray(m_in, float) + np.asarray(m_out, float)) / (3.0 * m_star)) ** (1.0 / 3.0) * 0.5 * (a_in + a_out)
-    return (a_out - a_in) / r_h
 
 
 def min_spacing(ds: xr.Dataset, m_star: float) -> np.ndarray:
@@ -79,7 +59,7 @@ def min_spacing(ds: xr.Dataset, m_star: float) -> np.ndarray:
     if a.shape[1] < 2:
         return np.full(a.shape[0], np.nan)
     with np.errstate(invalid="ignore"):
-        d = mutual_hill_spacing(a[:, :-1], a[:, 1:], m[:, :-1], m[:, 1:], m_star)
+        d = hill_spacing(m_star, m[:, :-1], m[:, 1:], a[:, :-1], a[:, 1:])
         d = np.where(np.isfinite(d), d, np.inf)
         out = d.min(axis=1)
     return np.where(np.isfinite(out), out, np.nan)

@@ -28,17 +28,10 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.stats
 
+from scatter_pop.survey.statistics import Spread
 from scatter_pop.target.branches import BRANCHES
 
-__all__ = [
-    "Spread",
-    "Pathways",
-    "ConfigComparison",
-    "pathways",
-    "compare_configurations",
-    "CONFIG_QUANTITIES",
-    "MIN_SAMPLE",
-]
+__all__ = ["Pathways", "ConfigComparison", "pathways", "compare_configurations", "CONFIG_QUANTITIES", "MIN_SAMPLE"]
 
 #: fewer values than this in a sample: no percentiles, KS p or Cliff's delta ("too few to compare").
 #: Common practice: with 4 values the 16th and 84th percentiles are interpolations between two
@@ -51,28 +44,6 @@ CONFIG_QUANTITIES = {
     "spacing": ("closest initial spacing", "mutual Hill radii"),
     "count": ("initial planet count", ""),
 }
-
-
-@dataclass(frozen=True)
-class Spread:
-    """Median and 16th/84th percentiles of the finite values of a sample
-    (percentiles NaN with fewer than :data:`MIN_SAMPLE` values)."""
-
-    median: float
-    p16: float
-    p84: float
-    n: int
-
-    @classmethod
-    def of(cls, values) -> Spread:
-        v = np.asarray(values, dtype=float)
-        v = v[np.isfinite(v)]
-        if v.size == 0:
-            return cls(math.nan, math.nan, math.nan, 0)
-        p16, med, p84 = np.percentile(v, [16, 50, 84])
-        if v.size < MIN_SAMPLE:
-            p16 = p84 = math.nan
-        return cls(float(med), float(p16), float(p84), int(v.size))
 
 
 @dataclass(frozen=True)

@@ -13,8 +13,9 @@ from records import dataset, planet, system, write_run
 from scatter_pop import cli
 from scatter_pop.constants import MJUP_MSUN
 from scatter_pop.engine.outcome import EndReason, Fate
+from scatter_pop.engine.stability import hill_spacing
 from scatter_pop.survey.forward_model import ensemble_star_mass
-from scatter_pop.target.architecture import min_spacing, mutual_hill_spacing
+from scatter_pop.target.architecture import min_spacing
 from scatter_pop.target.judgement import judge
 from scatter_pop.target.matching import msini_kernel, sin_i_cdf, soft_weight
 from scatter_pop.target.planet import Target, Windows, target_from_flags
@@ -267,8 +268,8 @@ def test_spacing_in_mutual_hill_radii_against_gladman():
     # Gladman 1993, Icarus 106, 247: the critical separation for mu1 = mu2 = 1e-6 is
     # Delta/a1 = 0.030723, i.e. 3.464 mutual Hill radii with a-bar = (a1 + a2)/2 (derived
     # values from REFERENCES.md); 1e-3: Delta/a1 = 0.352233 -> 3.428
-    assert mutual_hill_spacing(1.0, 1.030723, 1e-6, 1e-6, 1.0) == pytest.approx(3.464, abs=2e-3)
-    assert mutual_hill_spacing(1.0, 1.352233, 1e-3, 1e-3, 1.0) == pytest.approx(3.428, abs=2e-3)
+    assert hill_spacing(1.0, 1e-6, 1e-6, 1.0, 1.030723) == pytest.approx(3.464, abs=2e-3)
+    assert hill_spacing(1.0, 1e-3, 1e-3, 1.0, 1.352233) == pytest.approx(3.428, abs=2e-3)
     ds = dataset([system(0, [planet(1.0, 1.0, 0.1, a_initial=1.352233), planet(1.0, 1.0, 0.1, a_initial=1.0)])], 2)
     ds["mass_initial"][:] = 1e-3
     assert min_spacing(ds, 1.0)[0] == pytest.approx(3.428, abs=2e-3)  # order by a, not by index
