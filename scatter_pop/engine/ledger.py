@@ -125,12 +125,13 @@ def write_checkpoint(path, ledger: Ledger, sim_bytes: bytes) -> None:
     Parameters
     ----------
     path : str or Path
-        Checkpoint file; its directory must exist.
+        Checkpoint file (its folder is created if missing).
     ledger : Ledger
     sim_bytes : bytes
         REBOUND binary snapshot of the simulation.
     """
     path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
     head = ledger.to_json().encode("utf-8")
     tmp = path.with_name(path.name + f".tmp{os.getpid()}")
     with open(tmp, "wb") as fh:

@@ -1,4 +1,4 @@
-"""Carrying a run folder to a later end time: ``scatter-pop run`` on the same folder with a raised
+"""Carrying a run folder to a later end time: a run (``scatter-pop run`` / ``run_ensemble``) on the same folder with a raised
 ``integration.end_time`` continues the unsettled systems from their kept final state.
 
 The promise checked here is the project's reproducibility promise (each system depends only on the
@@ -12,11 +12,14 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from ensemble_helpers import assert_physics_equal, reference, run_cli, spec_text
+from ensemble_helpers import assert_physics_equal, reference, spec_text
 
 from scatter_pop.cli.main import main
 from scatter_pop.cli.status import status_lines
 from scatter_pop.engine.outcome import EndReason
+from scatter_pop.ensemble.cluster import ClusterConfig, connect
+from scatter_pop.ensemble.driver import run_ensemble
+from scatter_pop.spec.reader import parse_spec
 from scatter_pop.store.run_folder import open_ensemble
 
 pytestmark = pytest.mark.slow
@@ -28,22 +31,22 @@ EXTRA = "check_orbits = 3.0\n"
 @pytest.fixture(scope="module")
 def carried(tmp_path_factory):
     root = tmp_path_factory.mktemp("carried")
-    spec = root / "spec.toml"
     out = root / "run"
-    spec.write_text(spec_text(systems=N, end_time=T1, extra=EXTRA))
-    first = run_cli("run", spec, "--out", out, "--workers", "1", timeout=300)
-    assert first.returncode == 0, first.stderr
-    before = open_ensemble(out)
-    status = status_lines(out)
-    status.append("kept " + " ".join(sorted(p.name for p in (out / "checkpoints").glob("system_*.bin"))))
-    spec.write_text(spec_text(systems=N, end_time=T2, extra=EXTRA))
-    second = run_cli("run", spec, "--out", out, "--workers", "1", timeout=300)
-    assert second.returncode == 0, second.stderr
-    return spec, out, before, status, second.stdout, open_ensemble(out)
+    with connect(ClusterConfig(dashboard_port=0), workers=1) as client:
+        before = run_ensemble(
+            parse_spec(spec_text(systems=N, end_time=T1, extra=EXTRA)), out=out, client=client, log=lambda _: None
+        )
+        status = status_lines(out)
+        status.append("kept " + " ".join(sorted(p.name for p in (out / "checkpoints").glob("system_*.bin"))))
+        lines = []
+        after = run_ensemble(
+            parse_spec(spec_text(systems=N, end_time=T2, extra=EXTRA)), out=out, client=client, log=lines.append
+        )
+    return out, before, status, "\n".join(lines), after
 
 
 def test_first_run_keeps_the_final_state_of_every_unsettled_system(carried):
-    _, out, before, status, _, _ = carried
+    out, before, status, _, _ = carried
     assert_physics_equal(before, reference(N, T1, EXTRA))
     stopped = before["system"].values[before["end_reason"].values == int(EndReason.END_TIME)]
     settled = before["system"].values[before["end_reason"].values == int(EndReason.ONE_PLANET)]
@@ -57,7 +60,7 @@ def test_first_run_keeps_the_final_state_of_every_unsettled_system(carried):
 
 
 def test_raised_end_time_equals_the_later_run_from_the_start(carried):
-    _, _, before, _, stdout, after = carried
+    _, before, _, stdout, after = carried
     assert "systems carried from their end time to the later one" in stdout
     assert_physics_equal(after, reference(N, T2, EXTRA))
     carried = before["end_reason"].values == int(EndReason.END_TIME)
@@ -65,7 +68,7 @@ def test_raised_end_time_equals_the_later_run_from_the_start(carried):
 
 
 def test_settled_systems_are_not_touched(carried):
-    _, _, before, _, _, after = carried
+    _, before, _, _, after = carried
     settled = before["system"].values[before["end_reason"].values == int(EndReason.ONE_PLANET)]
     for name in before.data_vars:  # every variable, the wall-clock time included
         np.testing.assert_array_equal(
@@ -74,7 +77,7 @@ def test_settled_systems_are_not_touched(carried):
 
 
 def test_lowered_end_time_or_another_change_is_refused_and_nothing_changes(carried, tmp_path, capsys):
-    _, out, _, _, _, after = carried
+    out, _, _, _, after = carried
     stamp = (out / "ensemble.nc").stat().st_mtime_ns
     for text, named in (
         (spec_text(systems=N, end_time=T1, extra=EXTRA), "integration.end_time = 600.0"),

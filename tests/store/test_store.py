@@ -131,11 +131,16 @@ def test_part_of_another_spec_is_not_mixed_in(tmp_path):
 def test_changed_spec_refused_naming_the_key_and_fresh_moves_the_old_run_aside(tmp_path):
     folder = folder_with_parts(tmp_path)
     before = sorted(p.name for p in folder.parts_dir.iterdir())
-    changed = parse_spec(TINY_TEXT.replace("end_time = 300.0", "end_time = 2000.0"))
+    changed = parse_spec(TINY_TEXT.replace('integrator = "ias15"', 'integrator = "ias15"\nepsilon = 1e-8'))
     with pytest.raises(InputError) as err:
         prepare_folder(changed, folder.path)
-    assert "integration.end_time" in str(err.value) and "--fresh" in str(err.value)
+    assert "integration.epsilon" in str(err.value) and "--fresh" in str(err.value)
     assert "\n" not in str(err.value)
+    assert sorted(p.name for p in folder.parts_dir.iterdir()) == before
+    # the end time: raised it is accepted (the run is carried further), lowered refused
+    assert prepare_folder(parse_spec(TINY_TEXT.replace("end_time = 300.0", "end_time = 2000.0")), folder.path)
+    with pytest.raises(InputError, match="can only be raised"):
+        prepare_folder(parse_spec(TINY_TEXT.replace("end_time = 300.0", "end_time = 200.0")), folder.path)
     assert sorted(p.name for p in folder.parts_dir.iterdir()) == before
     log = []
     prepare_folder(changed, folder.path, fresh=True, log=log.append)
