@@ -38,6 +38,10 @@ def carried(tmp_path_factory):
         )
         status = status_lines(out)
         status.append("kept " + " ".join(sorted(p.name for p in (out / "checkpoints").glob("system_*.bin"))))
+        from scatter_pop.ensemble.driver import EnsembleRun
+
+        later = parse_spec(spec_text(systems=N, end_time=T2, extra=EXTRA))
+        status.append("plan " + EnsembleRun(later, out, client=client, log=lambda _: None).plan().summary())
         lines = []
         after = run_ensemble(
             parse_spec(spec_text(systems=N, end_time=T2, extra=EXTRA)), out=out, client=client, log=lines.append
@@ -51,12 +55,14 @@ def test_first_run_keeps_the_final_state_of_every_unsettled_system(carried):
     stopped = before["system"].values[before["end_reason"].values == int(EndReason.END_TIME)]
     settled = before["system"].values[before["end_reason"].values == int(EndReason.ONE_PLANET)]
     assert stopped.size >= 4 and settled.size >= 1
-    kept = status[-1].split()[1:]  # after the first run
+    kept = next(x for x in status if x.startswith("kept ")).split()[1:]  # after the first run
     assert kept == [f"system_{i:08d}.bin" for i in stopped]
     line = next(x for x in status if x.startswith("carry on"))
     assert f"{stopped.size} systems stopped at the end time would continue" in line
     assert "integration.end_time (now 600 yr)" in line and "x2:" in line
     assert any(x.startswith("settlement   ") for x in status)
+    plan = next(x for x in status if x.startswith("plan "))  # what --dry-run prints before the raised run
+    assert f"{stopped.size} systems carried from their end time to the later one" in plan and "0 new" in plan
 
 
 def test_raised_end_time_equals_the_later_run_from_the_start(carried):
