@@ -18,7 +18,8 @@ A :class:`Plan` is made from the part files already on disk (:mod:`scatter_pop.s
   whatever the end time (:mod:`scatter_pop.engine.rebound_run`), the result equals a run made with
   the later end time from the start.
 
-Continued and retried systems are recomputed per part and their rows replaced in that part.
+Continued and retried systems are recomputed per part, at most :data:`REDO_BATCH` to a task, and
+their rows replaced in that part.
 
 Consolidation: once :data:`CONSOLIDATE_PARTS` parts of adjacent ranges (none of them already a
 merged one) are on disk, they are merged into one file, so that a long run leaves a few hundred
@@ -58,6 +59,7 @@ def end_time_of(spec: EnsembleSpec, index: int) -> float:
 TARGET_TASK_SECONDS = 60.0
 MAX_AUTO_BATCH = 100
 CONSOLIDATE_PARTS = 64
+REDO_BATCH = 16  # continued systems per task (each finished task rewrites the part holding them)
 
 
 @dataclass(frozen=True)
@@ -122,9 +124,10 @@ class Plan:
                 if end_time_of(spec, int(i)) > limit:
                     again[int(i)] = float(used) + cap
                     self.n_further += 1
-            if again:
-                order = sorted(again)
-                self.redo.append(Task(tuple(order), True, tuple(again[i] for i in order)))
+            order = sorted(again)
+            for k in range(0, len(order), REDO_BATCH):  # several tasks, so that carrying a run further is parallel
+                chunk = order[k : k + REDO_BATCH]
+                self.redo.append(Task(tuple(chunk), True, tuple(again[i] for i in chunk)))
         self.n_continue = sum(len(t.indices) for t in self.redo)
         missing = np.flatnonzero(~held)
         self.n_new = int(missing.size)

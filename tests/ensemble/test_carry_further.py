@@ -14,6 +14,7 @@ import numpy as np
 import pytest
 from ensemble_helpers import assert_physics_equal, reference, spec_text
 
+import scatter_pop.ensemble.plan as plan_module
 from scatter_pop.cli.main import main
 from scatter_pop.cli.status import status_lines
 from scatter_pop.engine.outcome import EndReason
@@ -43,9 +44,11 @@ def carried(tmp_path_factory):
         later = parse_spec(spec_text(systems=N, end_time=T2, extra=EXTRA))
         status.append("plan " + EnsembleRun(later, out, client=client, log=lambda _: None).plan().summary())
         lines = []
-        after = run_ensemble(
-            parse_spec(spec_text(systems=N, end_time=T2, extra=EXTRA)), out=out, client=client, log=lines.append
-        )
+        with pytest.MonkeyPatch.context() as mp:  # several continuation tasks rewriting the same part
+            mp.setattr(plan_module, "REDO_BATCH", 3)
+            after = run_ensemble(
+                parse_spec(spec_text(systems=N, end_time=T2, extra=EXTRA)), out=out, client=client, log=lines.append
+            )
     return out, before, status, "\n".join(lines), after
 
 
