@@ -155,7 +155,7 @@ def verdict_sentences(r: EnsembleJudgement, j: Judgement) -> list[str]:
     ]
     words = interval_words(p.low, p.high)
     if words is not None:
-        out.append(f"The whole interval lies in one band: {words}.")
+        out.append(f"The whole interval lies in one band: such a planet is {words} of these initial conditions.")
     else:
         out.append(
             f"The interval reaches from the {_BAND_NAMES[rate_words(p.low)]} into the "
