@@ -108,6 +108,7 @@ class SystemRecord:
     wall_seconds: float = 0.0
     attempts: int = 1  # times the system was started (worker deaths)
     integrator: str = ""
+    lanes: int = 0  # SIMD lanes of the batch integrator that ran it (0: one system at a time)
 
     def count(self, fate: Fate) -> int:
         return sum(1 for p in self.planets if p.fate == fate)

@@ -40,6 +40,7 @@ def build_record(
     steps: int,
     integrator: str,
     circularisation_q: float,
+    lanes: int = 0,
 ) -> SystemRecord:
     """The SystemRecord of a finished (or capped) integration.
 
@@ -62,6 +63,8 @@ def build_record(
     integrator : str
     circularisation_q : float
         Survivors with pericentre below this (AU) are flagged as tidal candidates.
+    lanes : int
+        SIMD lanes of the batch integrator that ran the system (0: one system at a time).
     """
     planets = []
     for i in range(initial.count):
@@ -103,4 +106,5 @@ def build_record(
         steps=int(steps),
         wall_seconds=ledger.wall_seconds,
         integrator=integrator,
+        lanes=int(lanes),
     )
