@@ -83,6 +83,7 @@ def main(argv=None) -> int:
     ap.add_argument("--workers", type=int, default=2)
     ap.add_argument("--no-bs", action="store_true", help="leave out the BS path")
     ap.add_argument("--permutations", type=int, default=2000)
+    ap.add_argument("--block", type=int, default=40, help="systems per block; tables after each block")
     ap.add_argument("--json", default=None)
     args = ap.parse_args(argv)
     tols = [float(x) for x in args.tolerances.split(",") if x.strip()]
@@ -104,14 +105,33 @@ def main(argv=None) -> int:
     )
     t0 = time.monotonic()
     compile_seconds: dict = {}
-    results = run_paths(
-        spec, paths, workers=args.workers, compile_seconds=compile_seconds, log=lambda s: print(s, flush=True)
+    results = {p.label: [] for p in paths}
+    done = 0
+    while done < args.systems:
+        upto = min(args.systems, done + args.block)
+        spec = bench_spec(upto, args.end_time)
+        block = run_paths(
+            spec, paths, workers=args.workers, compile_seconds=compile_seconds, first=done, log=lambda s: None
+        )
+        for label, rows in block.items():
+            results[label] += rows
+        done = upto
+        report(spec, paths, results, compile_seconds, time.monotonic() - t0, lanes, args)
+    cold = cold_compile_seconds(lanes, tols[0])
+    print(
+        f"cold compile (empty disk cache, fresh process), tolerance {tols[0]:.0e}, {lanes} lanes: "
+        + ", ".join(f"{n} bodies {s:.2f} s" for n, s in cold.items())
+        + f"; total {sum(cold.values()):.2f} s",
+        flush=True,
     )
-    wall = time.monotonic() - t0
+    return 0
+
+
+def report(spec, paths, results, compile_seconds, wall, lanes, args) -> None:
+    """Print the tables for the systems measured so far (and write the JSON record)."""
     summary = summarize(spec, results, permutations=args.permutations)
     ref_branch = branching([r for r, _, _ in results["reference"]], spec.planets.count)
-
-    print(f"\n{args.systems} systems to {args.end_time:g} yr; {lanes} lanes; {wall:.0f} s wall")
+    print(f"\n{spec.run.systems} systems to {args.end_time:g} yr; {lanes} lanes; {wall:.0f} s wall")
     head = (
         f"{'path':<13} {'CPU s/sys':>9} {'x IAS15':>7} {'med|dE/E|':>9} {'max|dE/E|':>9} "
         f"{'KS e':>6} {'AD e':>6} {'KS a':>6} {'AD a':>6} {'peak MB':>7}"
@@ -119,9 +139,7 @@ def main(argv=None) -> int:
     print(head)
     print("-" * len(head))
     for label, s in summary.items():
-        ps = " ".join(
-            f"{s[k]:6.3f}" if s.get(k) is not None else f"{'-':>6}" for k in ("ks_e", "ad_e", "ks_a", "ad_a")
-        )
+        ps = " ".join(f"{s[k]:6.3f}" if s.get(k) is not None else f"{'-':>6}" for k in ("ks_e", "ad_e", "ks_a", "ad_a"))
         print(
             f"{label:<13} {s['cpu_seconds'] / s['systems']:9.4f} {s['speedup']:7.2f} "
             f"{s['energy_error_median']:9.1e} {s['energy_error_max']:9.1e} {ps} {s['worker_peak_rss_mb']:7.0f}"
@@ -142,36 +160,27 @@ def main(argv=None) -> int:
         print(f"{label:<13} " + " ".join(f"{c:>24}" for c in cells))
     end_reasons = {label: s["end_reasons"] for label, s in summary.items()}
     print("\nend reasons:", json.dumps(end_reasons))
-    print(
-        "\ncompile seconds per call (the first call of a worker process compiles, from heyoka's disk cache if warm):"
-    )
+    print("\ncompile seconds per call (the first call of a worker process compiles, from heyoka's disk cache if warm):")
     for label, secs in compile_seconds.items():
         print(f"  {label}: first {max(secs):.2f} s, others {sorted(secs)[0]:.2f} s")
-    cold = cold_compile_seconds(lanes, tols[0])
-    print(
-        f"cold compile (empty disk cache, fresh process), tolerance {tols[0]:.0e}, {lanes} lanes: "
-        + ", ".join(f"{n} bodies {s:.2f} s" for n, s in cold.items())
-        + f"; total {sum(cold.values()):.2f} s"
-    )
+    sys.stdout.flush()
     if args.json:
         with open(args.json, "w", encoding="utf-8") as fh:
             json.dump(
                 {
-                    "systems": args.systems,
+                    "systems": spec.run.systems,
                     "end_time": args.end_time,
                     "lanes": lanes,
                     "paths": {p.label: asdict(p.integration) for p in paths},
                     "summary": summary,
                     "branching": branches,
                     "compile_seconds": compile_seconds,
-                    "cold_compile_seconds": cold,
                     "wall_seconds": wall,
                 },
                 fh,
                 indent=1,
                 default=float,
             )
-    return 0
 
 
 if __name__ == "__main__":

@@ -175,22 +175,22 @@ def _run_together(spec_text: str, integration: dict, reference: bool, indices: t
     return [(r, cpu, rss) for r in records], compile_seconds
 
 
-def _jobs(spec, paths):
+def _jobs(spec, paths, first: int = 0):
     """(label, function, args, first index) of every integration, interleaved by system index."""
     jobs = []
     n = spec.run.systems
     for p in paths:
         args = (spec.text, asdict(p.integration), p.reference)
         if backend(p.integration.integrator).integrates_together:
-            for lo in range(0, n, TOGETHER_BATCH):
+            for lo in range(first, n, TOGETHER_BATCH):
                 jobs.append((p.label, _run_together, (*args, tuple(range(lo, min(n, lo + TOGETHER_BATCH)))), lo))
         else:
-            jobs += [(p.label, _run_one, (*args, i), i) for i in range(n)]
+            jobs += [(p.label, _run_one, (*args, i), i) for i in range(first, n)]
     order = {p.label: k for k, p in enumerate(paths)}
     return sorted(jobs, key=lambda j: (j[3], order[j[0]]))
 
 
-def run_paths(spec, paths, workers: int = 0, log=print, compile_seconds=None) -> dict:
+def run_paths(spec, paths, workers: int = 0, log=print, compile_seconds=None, first: int = 0) -> dict:
     """Integrate every system of ``spec`` on every path, interleaved system by system.
 
     A back end that integrates systems together gets them :data:`TOGETHER_BATCH` at a time, as a Dask
@@ -203,13 +203,15 @@ def run_paths(spec, paths, workers: int = 0, log=print, compile_seconds=None) ->
         memory is that of integrating, not of this driver).
     compile_seconds : dict, optional
         Filled with label -> list of the seconds each call spent compiling before it was timed.
+    first : int
+        Integrate systems ``first`` .. ``spec.run.systems - 1`` only (a benchmark grown in blocks).
 
     Returns
     -------
     dict
         label -> list of (record, cpu_seconds, worker_peak_rss_MB), in system order.
     """
-    jobs = _jobs(spec, paths)
+    jobs = _jobs(spec, paths, first)
     results = {p.label: [] for p in paths}
     t0 = time.monotonic()
     pool = None

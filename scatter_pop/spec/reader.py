@@ -363,7 +363,11 @@ def _integration(table) -> IntegrationSpec:
     d = IntegrationSpec()
     if s.has("integrator"):
         integrator = s.get(
-            "integrator", str, d.integrator, check=lambda x: x in INTEGRATORS, allowed="one of " + ", ".join(INTEGRATORS)
+            "integrator",
+            str,
+            d.integrator,
+            check=lambda x: x in INTEGRATORS,
+            allowed="one of " + ", ".join(INTEGRATORS),
         )
         why = backend(integrator).unavailable()
         if why is not None:

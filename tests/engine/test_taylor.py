@@ -344,3 +344,58 @@ def test_ejection_leaves_the_survivor_inside_the_parabolic_bound():
         bound = G * ini.star_mass * survivor.mass_final / (2 * abs(initial_energy(ini)))
         assert survivor.a_final <= bound * (1 + 1e-4)
     assert ejections >= 1
+
+
+# --------------------------------------------------------------------------- heyoka missing
+SPEC_TAYLOR = """
+[run]
+seed = 3
+systems = 2
+[star]
+mass = 1.0
+radius = 1.0
+[planets]
+count = 2
+mass = 1.0
+a_inner = 3.0
+spacing = 2.5
+[integration]
+end_time = 100.0
+"""
+
+
+@pytest.fixture
+def heyoka_missing(monkeypatch):
+    """This Python as if heyoka were not installed (``import heyoka`` raises ImportError)."""
+    import sys
+
+    from scatter_pop.spec import reader
+
+    monkeypatch.setitem(sys.modules, "heyoka", None)
+    monkeypatch.setattr(reader, "_NOTICES", set())
+
+
+def test_taylor_asked_for_without_heyoka_is_one_line_naming_the_key_and_the_alternatives(heyoka_missing):
+    with pytest.raises(InputError) as err:
+        parse_spec(SPEC_TAYLOR + 'integrator = "taylor"\n')
+    line = str(err.value)
+    assert "\n" not in line and line.startswith("integration.integrator = 'taylor': unavailable")
+    assert "ias15" in line and "bs" in line
+
+
+def test_cli_refuses_a_taylor_spec_without_heyoka_with_exit_2(heyoka_missing, tmp_path, capsys):
+    from scatter_pop.cli.main import main
+
+    spec = tmp_path / "spec.toml"
+    spec.write_text(SPEC_TAYLOR + 'integrator = "taylor"\n')
+    assert main(["check", str(spec)]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "integration.integrator" in err[0] and "Traceback" not in err[0]
+
+
+def test_default_falls_back_to_bs_with_a_one_line_notice_without_heyoka(heyoka_missing, capsys):
+    assert IntegrationSpec().integrator == "taylor"  # the default this fallback is for
+    for _ in range(2):
+        assert parse_spec(SPEC_TAYLOR).integration.integrator == "bs"
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and err[0].startswith("notice:") and "'bs'" in err[0]  # said once per process
