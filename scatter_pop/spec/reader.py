@@ -100,12 +100,12 @@ class PlanetsSpec:
 
 @dataclass(frozen=True)
 class IntegrationSpec:
-    integrator: str = "bs"
+    integrator: str = "taylor"  # falls back to FALLBACK_INTEGRATOR where heyoka cannot be imported
     end_time: float | None = None  # yr
     end_orbits: float | None = None  # initial inner orbits
     epsilon: float = 1e-9  # IAS15 accuracy parameter
     bs_epsilon: float = 1e-10  # BS tolerance (integrator bs)
-    taylor_tolerance: float = 1e-13  # heyoka Taylor-series tolerance (integrator taylor)
+    taylor_tolerance: float = 1e-12  # heyoka Taylor-series tolerance (integrator taylor)
     steps_per_orbit: float = 50.0  # hybrid step = current shortest period / this
     r_crit_hill: float = 3.0  # hybrid switching radius, in Hill radii
     ejection_distance: float = 1000.0  # AU from the star

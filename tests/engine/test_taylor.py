@@ -82,7 +82,9 @@ def phase_draws(n=10, seed=1):
 # --------------------------------------------------------------------------- determinism
 # Invented set-up: three 3 M_J planets with inflated 4 R_J radii, 2.0 mutual Hill radii apart from 1 AU
 # (inside the Gladman 1993 boundary), a 20 R_sun star and an 8 AU ejection distance, checked every 5
-# orbits: mergers, Hill-stable pairs and planets left in tens of years.  Set-up choices, not check values.
+# orbits: mergers, Hill-stable pairs and planets left in tens of years.  Set-up choices, not check values;
+# the tolerance is pinned so that the set-up keeps its events whatever the default (the Dask-level
+# tests in tests/ensemble/test_taylor_runs.py run at the default).
 TRIO = parse_spec("""
 [run]
 seed = 11
@@ -100,6 +102,7 @@ inc_sigma = 1.0
 radius = 4.0
 [integration]
 integrator = "taylor"
+taylor_tolerance = 1e-13
 end_time = 100.0
 ejection_distance = 8.0
 check_orbits = 5
@@ -282,7 +285,7 @@ def test_pairs_outside_the_gladman_boundary_never_meet_in_ten_thousand_orbits():
     for rec in recs:
         assert math.isnan(rec.t_first_encounter)
         assert [p.fate for p in rec.planets] == [Fate.SURVIVED, Fate.SURVIVED]
-        assert abs(rec.energy_error) < 1e-12
+        assert abs(rec.energy_error) < 1e-9  # the benchmark's bar for the default setting (issue 12)
 
 
 # --------------------------------------------------------------------------- against REBOUND IAS15
@@ -326,20 +329,21 @@ def test_first_encounter_time_agrees_with_ias15_within_its_steps():
 def test_ejection_leaves_the_survivor_inside_the_parabolic_bound():
     # ../shared/REFERENCES.md, "Energy bookkeeping of an ejection" (derived, standard argument): the
     # survivor obeys a_f <= G M* m_s / (2 |E_0|) (tests/test_ejection_energy.py gives the derivation and
-    # the 1e-4 allowance for the tidal coupling at the ejection distance); same invented systems, the
-    # first 8 of its seed in one batch (chaotic: which of them eject differs from the REBOUND run)
+    # the 1e-4 allowance for the tidal coupling at the ejection distance); same invented systems, three
+    # of its seed in one batch: 2 and 6 eject on this path, 1 merges at once and frees its lane (chaotic:
+    # which of them eject differs from the REBOUND run; the others run the whole 2e5 yr, too long here)
     from test_ejection_energy import SPEC, initial_energy
 
-    spec = parse_spec(SPEC.replace("ejection_distance = 50.0", 'ejection_distance = 50.0\nintegrator = "taylor"'))
-    recs = taylor_systems(spec, range(8))
+    spec = parse_spec(SPEC.replace('integrator = "bs"', 'integrator = "taylor"'))
+    recs = taylor_systems(spec, (1, 2, 6))
     ejections = 0
-    for index, rec in enumerate(recs):
+    for rec in recs:
         # an unbooked ejection would show as |E_ej/E_0| ~ 1e-2; ~2e6 steps at tol 1e-13 give ~1e-8
         assert abs(rec.energy_error) < 1e-7 and rec.angmom_error < 1e-7
         if sorted(p.fate for p in rec.planets) != [Fate.SURVIVED, Fate.EJECTED]:
             continue
         ejections += 1
-        ini = draw_system(spec, index)
+        ini = draw_system(spec, rec.index)
         survivor = next(p for p in rec.planets if p.fate == Fate.SURVIVED)
         bound = G * ini.star_mass * survivor.mass_final / (2 * abs(initial_energy(ini)))
         assert survivor.a_final <= bound * (1 + 1e-4)
