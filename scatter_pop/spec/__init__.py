@@ -1,7 +1,7 @@
 """Stage 1 — the ensemble spec: a TOML file read into frozen dataclasses, every key checked, units
 converted once to AU, yr, M_sun and radians.
 
-``reader`` holds the spec sections and :func:`load_spec`; ``cluster_table`` the ``[cluster]`` table
+``reader`` holds the spec sections, their ``KEYS`` and :func:`load_spec`; ``cluster_table`` the ``[cluster]`` table
 (what kind of Dask cluster runs the ensemble, walltimes); ``keys`` the one key-table checker both use.
 """
 

@@ -7,8 +7,6 @@ longest expected task.  Starting the cluster is :mod:`scatter_pop.ensemble.clust
 
 from __future__ import annotations
 
-import difflib
-import json
 import re
 import tomllib
 import warnings
@@ -16,6 +14,7 @@ from dataclasses import asdict, dataclass, replace
 from pathlib import Path
 
 from scatter_pop.errors import InputError
+from scatter_pop.spec.keys import toml_repr, unknown_key
 
 __all__ = [
     "ClusterConfig",
@@ -177,11 +176,7 @@ class ClusterConfig:
             if key == "kind":
                 continue
             if key not in _KEYS:
-                close = difflib.get_close_matches(key, _KEYS, n=1)
-                hint = f" (did you mean {close[0]!r}?)" if close else ""
-                raise InputError(
-                    f"{where}.{key} = {toml_repr(value)}: unknown key{hint}; allowed keys: kind, {', '.join(_KEYS)}"
-                )
+                raise unknown_key(where, key, value, ("kind", *_KEYS))
             check, kinds, allowed = _KEYS[key]
             if kind not in kinds:
                 raise InputError(
@@ -201,13 +196,6 @@ class ClusterConfig:
             if key in _KEYS and self.kind in _KEYS[key][1] and value is not None:
                 out[key] = list(value) if isinstance(value, tuple) else value
         return out
-
-
-def toml_repr(value) -> str:
-    """A value as TOML would write it (for one-line error messages)."""
-    if isinstance(value, bool):
-        return "true" if value else "false"
-    return json.dumps(value) if isinstance(value, str) else repr(value)
 
 
 def _int(low):

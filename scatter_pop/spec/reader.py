@@ -21,6 +21,7 @@ from typing import Any
 from scatter_pop.constants import GCM3_MSUN_AU3, MJUP_MSUN, R_JUP_AU, R_SUN_AU
 from scatter_pop.engine.backends import backend, backend_names
 from scatter_pop.errors import InputError
+from scatter_pop.spec.keys import Table, coerce, toml_repr
 
 __all__ = [
     "Distribution",
@@ -156,66 +157,17 @@ class EnsembleSpec:
         return hashlib.sha256(text.encode()).hexdigest()
 
 
+#: The keys each section takes (docs/spec.md lists every one; tests/spec/test_spec.py checks it).
+KEYS = {
+    "run": ("name", "seed", "systems", "batch_size"),
+    "star": ("mass", "radius"),
+    "planets": ("count", "mass", "masses", "a", "a_inner", "spacing", "e_sigma", "inc_sigma", "density", "radius"),
+    "integration": tuple(IntegrationSpec.__dataclass_fields__),
+    "outcomes": tuple(OutcomeSpec.__dataclass_fields__),
+}
+
+
 # --------------------------------------------------------------------------- checking
-_TYPE_WORDS = {int: "an integer", float: "a number", str: "a string", bool: "true or false"}
-
-
-class _Section:
-    """Reads one TOML table, remembering which keys were used."""
-
-    def __init__(self, table: Any, where: str, required: bool = True):
-        if table is None:
-            if required:
-                raise InputError(f"section [{where}] is missing")
-            table = {}
-        if not isinstance(table, dict):
-            raise InputError(f"{where} = {table!r}: must be a table [{where}]")
-        self.table, self.where = table, where
-
-    def name(self, key: str) -> str:
-        return f"{self.where}.{key}"
-
-    def has(self, key: str) -> bool:
-        return key in self.table
-
-    def get(self, key, typ, default=None, *, required=False, check=None, allowed=""):
-        if key not in self.table:
-            if required:
-                raise InputError(f"{self.name(key)} is missing: {allowed or 'required'}")
-            return default
-        value = self.table[key]
-        value = _coerce(value, typ, self.name(key), allowed)
-        if check is not None and not check(value):
-            raise InputError(f"{self.name(key)} = {_show(value)}: must be {allowed}")
-        return value
-
-    def finish(self, allowed_keys) -> None:
-        for key in self.table:
-            if key not in allowed_keys:
-                raise InputError(
-                    f"{self.name(key)}: unknown key; allowed keys in [{self.where}]: {', '.join(sorted(allowed_keys))}"
-                )
-
-
-def _show(value) -> str:
-    if isinstance(value, bool):
-        return "true" if value else "false"
-    if isinstance(value, str):
-        return json.dumps(value)
-    return repr(value)
-
-
-def _coerce(value, typ, key, allowed):
-    word = _TYPE_WORDS[typ]
-    if typ is float and isinstance(value, int) and not isinstance(value, bool):
-        value = float(value)
-    if not isinstance(value, typ) or (typ is not bool and isinstance(value, bool)):
-        raise InputError(f"{key} = {_show(value)}: must be {word}" + (f" ({allowed})" if allowed else ""))
-    if typ is float and not math.isfinite(value):
-        raise InputError(f"{key} = {_show(value)}: must be a finite number" + (f" ({allowed})" if allowed else ""))
-    return value
-
-
 def _positive(x):
     return x > 0
 
@@ -225,13 +177,13 @@ def _distribution(value, key: str, *, positive=True) -> Distribution:
     if isinstance(value, (int, float)) and not isinstance(value, bool):
         value = float(value)
         if positive and not value > 0 or not math.isfinite(value):
-            raise InputError(f"{key} = {_show(value)}: must be > 0")
+            raise InputError(f"{key} = {toml_repr(value)}: must be > 0")
         return Distribution("fixed", value, value)
     if not isinstance(value, dict):
         raise InputError(
-            f'{key} = {_show(value)}: must be a number or a table {{distribution = "uniform", low = ..., high = ...}}'
+            f'{key} = {toml_repr(value)}: must be a number or a table {{distribution = "uniform", low = ..., high = ...}}'
         )
-    sec = _Section(value, key)
+    sec = Table(value, key)
     kind = sec.get(
         "distribution",
         str,
@@ -256,27 +208,27 @@ def _distribution(value, key: str, *, positive=True) -> Distribution:
 
 # --------------------------------------------------------------------------- sections
 def _run(table) -> RunSpec:
-    s = _Section(table, "run")
+    s = Table(table, "run")
     name = s.get("name", str, "ensemble", check=lambda n: n.strip() != "", allowed="a non-empty string")
     seed = s.get("seed", int, required=True, check=lambda x: 0 <= x < 2**63, allowed="an integer from 0 to 2^63-1")
     systems = s.get(
         "systems", int, required=True, check=lambda x: 1 <= x <= 10_000_000, allowed="an integer from 1 to 10000000"
     )
     batch = s.get("batch_size", int, 0, check=lambda x: x >= 0, allowed=">= 0 (0: automatic)")
-    s.finish({"name", "seed", "systems", "batch_size"})
+    s.finish(KEYS["run"])
     return RunSpec(name, seed, systems, batch)
 
 
 def _star(table) -> StarSpec:
-    s = _Section(table, "star")
+    s = Table(table, "star")
     mass = s.get("mass", float, required=True, check=lambda m: 0 < m <= 100, allowed="in M_sun, > 0 and <= 100")
     radius = s.get("radius", float, 1.0, check=lambda r: 0 < r <= 1000, allowed="in R_sun, > 0 and <= 1000")
-    s.finish({"mass", "radius"})
+    s.finish(KEYS["star"])
     return StarSpec(mass, radius * R_SUN_AU)
 
 
 def _planets(table) -> PlanetsSpec:
-    s = _Section(table, "planets")
+    s = Table(table, "planets")
     count = s.get("count", int, required=True, check=lambda n: 2 <= n <= 10, allowed="an integer from 2 to 10")
     if s.has("mass") == s.has("masses"):
         raise InputError(
@@ -290,7 +242,7 @@ def _planets(table) -> PlanetsSpec:
         items = s.table["masses"]
         if not isinstance(items, list) or len(items) != count:
             raise InputError(
-                f"planets.masses = {_show(items)}: must be a list of {count} masses or "
+                f"planets.masses = {toml_repr(items)}: must be a list of {count} masses or "
                 f"distributions (planets.count = {count})"
             )
         masses = tuple(_distribution(v, f"planets.masses[{i}]") for i, v in enumerate(items))
@@ -307,10 +259,10 @@ def _planets(table) -> PlanetsSpec:
             raise InputError("planets.a: give either a (explicit list) or a_inner with spacing, not both")
         items = s.table["a"]
         if not isinstance(items, list) or len(items) != count:
-            raise InputError(f"planets.a = {_show(items)}: must be a list of {count} semi-major axes in AU")
-        a_list = tuple(_coerce(v, float, f"planets.a[{i}]", "in AU") for i, v in enumerate(items))
+            raise InputError(f"planets.a = {toml_repr(items)}: must be a list of {count} semi-major axes in AU")
+        a_list = tuple(coerce(v, float, f"planets.a[{i}]", "in AU") for i, v in enumerate(items))
         if any(x <= 0 for x in a_list) or any(b <= a for a, b in zip(a_list, a_list[1:])):
-            raise InputError(f"planets.a = {_show(list(a_list))}: must be positive and increasing (AU)")
+            raise InputError(f"planets.a = {toml_repr(list(a_list))}: must be positive and increasing (AU)")
     else:
         a_inner = s.get(
             "a_inner", float, required=True, check=_positive, allowed="in AU, > 0 (or give planets.a as a list)"
@@ -319,7 +271,7 @@ def _planets(table) -> PlanetsSpec:
             raise InputError("planets.spacing is missing: a number or a uniform range, in mutual Hill radii")
         spacing = _distribution(s.table["spacing"], s.name("spacing"))
         if spacing.kind not in ("fixed", "uniform"):
-            raise InputError(f"planets.spacing.distribution = {_show(spacing.kind)}: must be fixed or uniform")
+            raise InputError(f"planets.spacing.distribution = {toml_repr(spacing.kind)}: must be fixed or uniform")
     e_sigma = s.get("e_sigma", float, 0.0, check=lambda x: 0 <= x < 1, allowed=">= 0 and < 1")
     inc_deg = s.get("inc_sigma", float, 0.0, check=lambda x: 0 <= x <= 90, allowed="in degrees, >= 0 and <= 90")
     if s.has("density") and s.has("radius"):
@@ -332,7 +284,7 @@ def _planets(table) -> PlanetsSpec:
             s.get("density", float, 1.33, check=lambda r: 0.01 <= r <= 100, allowed="in g/cm^3, from 0.01 to 100")
             * GCM3_MSUN_AU3
         )
-    s.finish({"count", "mass", "masses", "a", "a_inner", "spacing", "e_sigma", "inc_sigma", "density", "radius"})
+    s.finish(KEYS["planets"])
     return PlanetsSpec(count, masses, a_inner, spacing, a_list, e_sigma, math.radians(inc_deg), density, radius)
 
 
@@ -359,7 +311,7 @@ _NOTICES: set = set()
 
 
 def _integration(table) -> IntegrationSpec:
-    s = _Section(table, "integration")
+    s = Table(table, "integration")
     d = IntegrationSpec()
     if s.has("integrator"):
         integrator = s.get(
@@ -406,12 +358,12 @@ def _integration(table) -> IntegrationSpec:
         stop_when_settled=s.get("stop_when_settled", bool, d.stop_when_settled),
         hill_margin=s.get("hill_margin", float, d.hill_margin, check=lambda x: x >= 1, allowed=">= 1"),
     )
-    s.finish(set(IntegrationSpec.__dataclass_fields__))
+    s.finish(KEYS["integration"])
     return spec
 
 
 def _outcomes(table) -> OutcomeSpec:
-    s = _Section(table, "outcomes", required=False)
+    s = Table(table, "outcomes", required=False)
     d = OutcomeSpec()
     spec = OutcomeSpec(
         disruption_eta=s.get(
@@ -421,7 +373,7 @@ def _outcomes(table) -> OutcomeSpec:
             "circularisation_q", float, d.circularisation_q, check=lambda x: x >= 0, allowed="in AU, >= 0"
         ),
     )
-    s.finish({"disruption_eta", "circularisation_q"})
+    s.finish(KEYS["outcomes"])
     return spec
 
 
@@ -446,7 +398,7 @@ def parse_spec(text: str, source: str = "<spec>") -> EnsembleSpec:
         )
     cluster_table = doc.get("cluster", {})
     if not isinstance(cluster_table, dict):
-        raise InputError(f"cluster = {_show(cluster_table)}: must be a table [cluster]")
+        raise InputError(f"cluster = {toml_repr(cluster_table)}: must be a table [cluster]")
     from scatter_pop.spec.cluster_table import ClusterConfig  # the cluster table is checked by its own module
 
     cluster = ClusterConfig.from_table(cluster_table)

@@ -479,3 +479,18 @@ def test_sigterm_with_a_hanging_clean_up_still_ends_the_process(tmp_path):
         proc.kill()
     assert proc.returncode == 143
     assert "rerun the same command to resume" in err and "Traceback" not in err
+
+
+def test_every_spec_kind_has_one_module_behind_the_interface():
+    """The spec's cluster.kind values and the kind modules are the same set, each a ClusterKind whose
+    batch flag matches the spec's batch kinds (whose keys the spec takes)."""
+    from scatter_pop.ensemble.cluster_kinds import cluster_kind, kind_names
+    from scatter_pop.ensemble.cluster_kinds.base import ClusterKind
+    from scatter_pop.spec.cluster_table import BATCH, KINDS
+
+    assert set(kind_names()) == set(KINDS)
+    for name in kind_names():
+        kind = cluster_kind(name)
+        assert isinstance(kind, ClusterKind) and kind.name == name
+        assert kind.batch == (name in BATCH)
+        assert (kind.submit_command is not None) == kind.batch

@@ -7,6 +7,7 @@ through astropy.constants, a reference library independent of our constants.
 from __future__ import annotations
 
 import math
+import re
 import subprocess
 import sys
 from pathlib import Path
@@ -210,3 +211,25 @@ def test_console_script_exit_status_and_no_traceback(tmp_path):
     assert proc.returncode == 2
     assert proc.stderr.strip().count("\n") == 0 and "planets.count = 11" in proc.stderr
     assert "from 2 to 10" in proc.stderr
+
+
+def test_docs_spec_page_lists_every_key():
+    """docs/spec.md is the reference of the spec: every key the reader takes has a row there, and every
+    row names a key the reader takes (common practice: reference docs generated from, or checked
+    against, the code)."""
+    from scatter_pop.spec.reader import KEYS
+
+    page = (Path(__file__).resolve().parents[2] / "docs" / "spec.md").read_text(encoding="utf-8")
+    rows = set(re.findall(r"^\| `(\w+)\.(\w+)` \|", page, flags=re.M))
+    taken = {(section, key) for section, keys in KEYS.items() for key in keys}
+    assert taken - rows == set(), "keys missing from docs/spec.md"
+    assert rows - taken == set(), "docs/spec.md rows that the reader does not take"
+
+
+def test_unknown_key_names_the_closest_allowed_key():
+    text = (DATA / "tiny.toml").read_text().replace("[star]\n", "[star]\nradious = 2.0\n")
+    with pytest.raises(
+        InputError,
+        match=r"^star\.radious = 2\.0: unknown key \(did you mean 'radius'\?\); allowed keys in \[star\]: mass, radius$",
+    ):
+        parse_spec(text)

@@ -9,21 +9,19 @@ step, how REBOUND searches for contacts, which spec keys tune it).  The spec's
 
 from __future__ import annotations
 
-import pkgutil
 from functools import cache
-from importlib import import_module
+
+from scatter_pop.plugins import load_variant, variant_names
 
 __all__ = ["backend", "backend_names"]
 
-_SUPPORT = {"base", "rebound_family"}
+_SHARED = {"base", "rebound_family"}
 
 
 @cache
 def backend_names() -> tuple[str, ...]:
     """Names of every back end module, in alphabetical order (importing none of them)."""
-    return tuple(
-        sorted(m.name for m in pkgutil.iter_modules(__path__) if m.name not in _SUPPORT and not m.name.startswith("_"))
-    )
+    return variant_names(__path__, _SHARED)
 
 
 def backend(name: str):
@@ -34,6 +32,4 @@ def backend(name: str):
     KeyError
         ``name`` is not a back end (the spec reader checks names before this is called).
     """
-    if name not in backend_names():
-        raise KeyError(name)
-    return import_module(f"{__name__}.{name}").BACKEND
+    return load_variant(__name__, backend_names(), name, "BACKEND")
