@@ -56,8 +56,8 @@ def measure(path: str, systems: int, orbits: float, integrator: str | None = Non
     for rec, share in zip(records, shares):
         cpu.append(share)
         steps.append(rec.steps)
-        early += rec.end_reason.word != "end_time"
-        if rec.end_reason.word == "end_time":
+        early += rec.end_reason.word != "stopped_at_end_time"
+        if rec.end_reason.word == "stopped_at_end_time":
             running.append(1000 * cpu[-1] / orbits)
     per_system = sum(cpu) / systems
     per_korbit = 1000 * per_system / orbits

@@ -13,7 +13,8 @@ from pathlib import Path
 import numpy as np
 
 from scatter_pop.constants import MJUP_MSUN, R_JUP_AU
-from scatter_pop.engine.outcome import EndReason, Fate, PlanetRecord, SystemRecord
+from scatter_pop.engine.outcome import EndReason, Fate, PlanetRecord, Settlement, SystemRecord
+from scatter_pop.engine.settlement import classify
 from scatter_pop.store.schema import records_to_dataset
 
 __all__ = ["planet", "system", "dataset", "random_ensemble", "write_run"]
@@ -44,12 +45,29 @@ def planet(
     )
 
 
-def system(index, planets, *, reason=EndReason.ONE_PLANET, t_enc=1e3, t_end=1e5, energy=1e-9):
-    """One system record with the given planets."""
+def system(
+    index,
+    planets,
+    *,
+    reason=EndReason.ONE_PLANET,
+    t_enc=1e3,
+    t_end=1e5,
+    energy=1e-9,
+    hill_ratio=math.nan,
+    recent_gap=math.nan,
+    star_mass=1.0,
+    hill_margin=1.01,
+):
+    """One system record with the given planets; its settlement class comes from the engine's rule
+    (``scatter_pop.engine.settlement.classify``) with ``hill_ratio``, ``recent_gap`` and the star mass."""
+    planets = tuple(planets)
+    settlement = classify(
+        reason, planets, star_mass, hill_ratio=hill_ratio, recent_gap=recent_gap, hill_margin=hill_margin
+    )
     return SystemRecord(
         index=index,
         seed=1000 + index,
-        planets=tuple(planets),
+        planets=planets,
         t_end=t_end,
         end_reason=reason,
         t_first_encounter=t_enc,
@@ -57,6 +75,10 @@ def system(index, planets, *, reason=EndReason.ONE_PLANET, t_enc=1e3, t_end=1e5,
         angmom_error=1e-10,
         steps=100,
         wall_seconds=0.1,
+        t_limit=t_end,
+        hill_ratio=hill_ratio,
+        recent_gap=recent_gap,
+        settlement=Settlement.UNSETTLED if settlement is None else settlement,
     )
 
 

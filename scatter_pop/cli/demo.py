@@ -188,6 +188,12 @@ def run_demo(
         f"(p = {row.test.ks_pvalue:.3g}), AD T = {row.test.ad_statistic:.2f} ({ad_p}); "
         f"n_sim = {row.test.n_x}"
     )
+    classes = result.ensembles[0].by_class
+    log(
+        f"settlement: {classes['settled'].n} settled, {classes['likely_stable'].n} likely stable, "
+        f"{classes['unsettled'].n} unsettled (snapshots at the end time, left out of the headline) of "
+        f"{result.ensembles[0].n_systems} systems used"
+    )
     log("verdict: " + verdict_sentence(result.ensembles[0], result))
     log("")
     log(f"ensemble:         {paths['ensemble']}")

@@ -41,12 +41,54 @@ def configure(parser) -> None:
         "--batch-size", type=int, metavar="N", help="systems per task (default: run.batch_size; 0 = automatic)"
     )
     parser.add_argument(
+        "--until-width",
+        type=float,
+        metavar="W",
+        help="campaign: add systems in index order (rounds from run.systems up) until the interval of the fraction "
+        "of settled or likely-stable systems like --target is at most W wide (a fraction, e.g. 0.05)",
+    )
+    parser.add_argument("--target", metavar="FILE", help="with --until-width: the target planet ([target] table, TOML)")
+    parser.add_argument(
+        "--cpu-budget",
+        type=float,
+        metavar="SECONDS",
+        help="with --until-width: start no round once this much CPU time has been spent integrating",
+    )
+    parser.add_argument(
+        "--max-systems", type=int, metavar="N", help="with --until-width: largest ensemble (default 100 x run.systems)"
+    )
+    parser.add_argument(
         "--progress-every",
         type=float,
         default=10.0,
         metavar="SECONDS",
         help="seconds between progress lines (default 10)",
     )
+
+
+def _until_options(args, spec):
+    """The campaign flags, checked (None without --until-width)."""
+    if args.until_width is None:
+        for flag, value in (
+            ("--target", args.target),
+            ("--cpu-budget", args.cpu_budget),
+            ("--max-systems", args.max_systems),
+        ):
+            if value is not None:
+                raise InputError(f"{flag} is only used with --until-width W")
+        return None
+    if not 0 < args.until_width < 1:
+        raise InputError(f"--until-width {args.until_width}: must be a fraction between 0 and 1 (e.g. 0.05)")
+    if args.target is None:
+        raise InputError("--until-width needs --target FILE (the planet whose fraction is to be made precise)")
+    if args.cpu_budget is not None and not args.cpu_budget > 0:
+        raise InputError(f"--cpu-budget {args.cpu_budget}: must be a number of seconds > 0")
+    if args.max_systems is not None and args.max_systems < spec.run.systems:
+        raise InputError(f"--max-systems {args.max_systems}: must be at least run.systems = {spec.run.systems}")
+    from scatter_pop.cli.demo import load_demo_target
+
+    target, _, _ = load_demo_target(args.target)
+    return {"target": target}
 
 
 def execute(args) -> int:
@@ -64,6 +106,7 @@ def execute(args) -> int:
         raise InputError(
             f"--scheduler {args.scheduler} with {flag}: give one (an existing scheduler brings its own workers)"
         )
+    until = _until_options(args, spec)  # checked before anything is computed
     cluster = load_cluster_file(args.cluster) if args.cluster else spec.cluster
     resolved = apply_overrides(cluster, args.workers, args.scheduler)  # checks the flags now
     out = args.out if args.out is not None else default_out(spec)
@@ -79,6 +122,26 @@ def execute(args) -> int:
         batch_size=args.batch_size,
         progress_interval=args.progress_every,
     )
+    if until is not None and not args.dry_run:
+        from scatter_pop.target.campaign import run_until
+
+        options = {k: getattr(run, k) for k in ("workers", "scheduler", "cluster", "fresh", "extend", "retry_failed")}
+        with stop_signals("scatter-pop run"):
+            campaign = run_until(
+                spec,
+                out,
+                until["target"],
+                width=args.until_width,
+                cpu_budget=args.cpu_budget,
+                max_systems=args.max_systems,
+                batch_size=args.batch_size,
+                progress_interval=args.progress_every,
+                **options,
+            )
+        print(
+            f"done: {campaign.steps[-1].systems} systems in {run.out / 'ensemble.nc'} (stopped: {campaign.stopped_by})"
+        )
+        return 0
     if args.dry_run:
         plan = run.plan()
         print(plan.summary())

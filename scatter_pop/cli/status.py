@@ -5,7 +5,7 @@ Reads the folder only (never moves or writes anything), so it is safe while a ru
 
 from __future__ import annotations
 
-from scatter_pop.engine.outcome import EndReason, Fate
+from scatter_pop.engine.outcome import EndReason, Fate, Settlement
 from scatter_pop.ensemble.progress import Tally, format_duration
 from scatter_pop.store.run_folder import RunFolder, read_parts
 
@@ -19,6 +19,30 @@ def configure(parser) -> None:
 def _listing(indices, limit: int = 20) -> str:
     shown = ", ".join(str(i) for i in indices[:limit])
     return shown + (f", ... ({len(indices)} in all)" if len(indices) > limit else "")
+
+
+def _further_line(tally: Tally, spec, workers: int) -> str:
+    """How many systems a raised end time would continue, and its cost at their measured rate."""
+    n_open = tally.reasons[EndReason.END_TIME]
+    key, value = spec.end_setting()
+    if not n_open:
+        return "carry on     no system stopped at the end time: raising it would compute nothing"
+    unit = "yr" if key == "end_time" else "inner orbits"
+    text = (
+        f"carry on     {n_open} systems stopped at the end time would continue if integration.{key} "
+        f"(now {value:g} {unit}) is raised"
+    )
+    if tally.open_years > 0 and tally.open_cpu_seconds > 0:
+        rate = tally.open_cpu_seconds / tally.open_years  # CPU s per simulated yr, summed over them
+        costs = []
+        for factor in (2, 10):
+            cpu = rate * tally.open_years * (factor - 1)
+            costs.append(
+                f"x{factor}: {format_duration(cpu)} CPU, ~{format_duration(cpu / workers)} on {workers} workers"
+            )
+        text += f"; at their measured rate ({rate * 1e3:.3g} CPU ms per simulated yr) " + "; ".join(costs)
+        text += " (an upper estimate: some will settle on the way)"
+    return text
 
 
 def status_lines(path) -> list[str]:
@@ -51,9 +75,15 @@ def status_lines(path) -> list[str]:
     f = tally.fates
     lines.append(
         f"planets      survived {f[Fate.SURVIVED]}, ejected {f[Fate.EJECTED]}, merged {f[Fate.MERGED]}, "
-        f"hit star {f[Fate.HIT_STAR]}, tidally disrupted {f[Fate.DISRUPTED]}"
+        f"hit star {f[Fate.HIT_STAR]}, tidally disrupted {f[Fate.DISRUPTED]}, unbound at the end {f[Fate.UNBOUND]}"
     )
     lines.append("end reasons  " + ", ".join(f"{r.word} {tally.reasons[r]}" for r in EndReason))
+    c = tally.settlement
+    lines.append(
+        f"settlement   settled {c[Settlement.SETTLED]}, likely stable {c[Settlement.LIKELY_STABLE]}, "
+        f"unsettled {c[Settlement.UNSETTLED]} (snapshots; only settled + likely stable are outcomes)"
+    )
+    lines.append(_further_line(tally, spec, state.get("workers") or 1))
     computed = tally.systems - len(tally.failed)
     mean = tally.cpu_seconds / computed if computed else float("nan")
     lines.append(

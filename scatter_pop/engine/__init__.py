@@ -4,13 +4,14 @@
 the spec names (``backends/``: one module per integrator, behind :class:`backends.base.Backend`);
 ``rebound_run``, ``rebound_setup``, ``rebound_state`` and ``search_radii`` are the REBOUND path;
 ``encounters`` (contact, escape and Hill geometry), ``ledger`` (fates, energy books, checkpoints),
-``record_builder`` and ``outcome`` (fate and end-reason codes, records) are shared by every back end;
+``record_builder``, ``outcome`` (fate, end-reason and settlement codes, records) and ``settlement``
+(whether an outcome is final) are shared by every back end;
 ``stability`` holds the closed-form criteria (Gladman, Marchal–Bozis, Petrovich, Safronov, r_t).
 """
 
 from scatter_pop.engine.initial_conditions import InitialSystem, draw_system, system_seed
 from scatter_pop.engine.integrate import integrate_initial, integrate_system
-from scatter_pop.engine.outcome import EndReason, Fate, PlanetRecord, SystemRecord
+from scatter_pop.engine.outcome import EndReason, Fate, PlanetRecord, Settlement, SystemRecord
 
 __all__ = [
     "draw_system",
@@ -22,4 +23,5 @@ __all__ = [
     "PlanetRecord",
     "Fate",
     "EndReason",
+    "Settlement",
 ]

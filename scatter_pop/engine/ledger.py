@@ -80,6 +80,9 @@ class Ledger:
         process are freed (seen in Dask workers continuing capped systems).
     wall_seconds : float
         Wall time spent integrating, over all segments (s).
+    recent_gaps : list of float
+        Osculating gap q_out - Q_in of a bound pair in mutual Hill radii at the last checks
+        (at most ``settlement.GAP_CHECKS``; emptied whenever the system is not a bound pair).
     """
 
     chunks_done: int = 0
@@ -93,6 +96,7 @@ class Ledger:
     radius: dict = field(default_factory=dict)
     bodies: list = field(default_factory=list)
     wall_seconds: float = 0.0
+    recent_gaps: list = field(default_factory=list)
     identity: dict = field(default_factory=dict)
 
     @property
@@ -121,12 +125,13 @@ def write_checkpoint(path, ledger: Ledger, sim_bytes: bytes) -> None:
     Parameters
     ----------
     path : str or Path
-        Checkpoint file; its directory must exist.
+        Checkpoint file (its folder is created if missing).
     ledger : Ledger
     sim_bytes : bytes
         REBOUND binary snapshot of the simulation.
     """
     path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
     head = ledger.to_json().encode("utf-8")
     tmp = path.with_name(path.name + f".tmp{os.getpid()}")
     with open(tmp, "wb") as fh:

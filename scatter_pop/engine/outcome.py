@@ -11,7 +11,7 @@ import math
 from dataclasses import dataclass
 from enum import IntEnum
 
-__all__ = ["Fate", "EndReason", "PlanetRecord", "SystemRecord", "NO_PLANET"]
+__all__ = ["Fate", "EndReason", "Settlement", "PlanetRecord", "SystemRecord", "NO_PLANET"]
 
 NO_PLANET = -1  # value of ``merged_into`` when a planet did not merge
 
@@ -24,6 +24,7 @@ class Fate(IntEnum):
     MERGED = 2  # collided with another planet and merged into it
     HIT_STAR = 3  # physical collision with the star
     DISRUPTED = 4  # pericentre inside eta * r_t: tidally disrupted
+    UNBOUND = 5  # still in the system at the end, but its astrocentric orbit is not an ellipse
 
     @property
     def word(self) -> str:
@@ -36,13 +37,14 @@ _FATE_WORDS = {
     Fate.MERGED: "merged",
     Fate.HIT_STAR: "hit_star",
     Fate.DISRUPTED: "tidally_disrupted",
+    Fate.UNBOUND: "unbound_at_end",
 }
 
 
 class EndReason(IntEnum):
     """Which rule ended the integration of a system."""
 
-    END_TIME = 0  # reached the spec's end time
+    END_TIME = 0  # stopped at the spec's end time with no stopping rule met: a snapshot
     ONE_PLANET = 1  # one planet left: nothing more can happen
     HILL_STABLE = 2  # two planets left, Hill stable with the safety margin
     NO_PLANETS = 3  # every planet removed
@@ -55,12 +57,31 @@ class EndReason(IntEnum):
 
 
 _END_WORDS = {
-    EndReason.END_TIME: "end_time",
+    EndReason.END_TIME: "stopped_at_end_time",
     EndReason.ONE_PLANET: "one_planet_left",
     EndReason.HILL_STABLE: "hill_stable_pair",
     EndReason.NO_PLANETS: "no_planet_left",
-    EndReason.CAPPED: "wall_clock_cap",
+    EndReason.CAPPED: "stopped_by_wall_clock_cap",
     EndReason.FAILED: "failed",
+}
+
+
+class Settlement(IntEnum):
+    """Whether a system's outcome is final (rule in :mod:`scatter_pop.engine.settlement`)."""
+
+    SETTLED = 0  # one planet (or none) left, or a pair Hill stable by the exact criterion
+    LIKELY_STABLE = 1  # a pair meeting the Petrovich (2015) criterion in its range, no recent approach
+    UNSETTLED = 2  # a snapshot: the orbits may still change
+
+    @property
+    def word(self) -> str:
+        return _SETTLEMENT_WORDS[self]
+
+
+_SETTLEMENT_WORDS = {
+    Settlement.SETTLED: "settled",
+    Settlement.LIKELY_STABLE: "likely_stable",
+    Settlement.UNSETTLED: "unsettled",
 }
 
 
@@ -108,6 +129,10 @@ class SystemRecord:
     wall_seconds: float = 0.0
     attempts: int = 1  # times the system was started (worker deaths)
     integrator: str = ""
+    t_limit: float = math.nan  # yr, the end time the system was integrated towards
+    hill_ratio: float = math.nan  # exact Marchal-Bozis ratio of a pair at the end (NaN unless 2 planets)
+    recent_gap: float = math.nan  # min (q_out - Q_in) / R_H,m at the last checks (NaN: no full window)
+    settlement: Settlement = Settlement.UNSETTLED
     lanes: int = 0  # SIMD lanes of the batch integrator that ran it (0: one system at a time)
 
     def count(self, fate: Fate) -> int:

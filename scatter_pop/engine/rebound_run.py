@@ -49,8 +49,8 @@ energy offset ignores third bodies.
 Records: final elements are astrocentric (primary = the star) and, for a planet
 already gone, those at the moment of its fate (a merging planet's orbit about
 the star at contact is often formally unbound).  A planet still inside the
-ejection distance at the end is a survivor even if unbound (e_final > 1 shows
-it).  The wall-clock cap counts all segments of a system together and is
+ejection distance at the end whose astrocentric orbit is not an ellipse gets the
+fate ``unbound_at_end``, never ``survived``.  The wall-clock cap counts all segments of a system together and is
 checked between chunks, so it can be exceeded by one chunk's duration.
 """
 
@@ -80,6 +80,7 @@ from scatter_pop.engine.rebound_setup import STAR_NAME, build_simulation, restor
 from scatter_pop.engine.rebound_state import astrocentric_orbit, body_size, fate_entry, hybrid_step, state_arrays
 from scatter_pop.engine.record_builder import build_record, planet_index, planet_name
 from scatter_pop.engine.search_radii import set_escape_radius, set_search_radii, set_star_radius
+from scatter_pop.engine.settlement import GAP_CHECKS, orbit_gap_hill
 from scatter_pop.engine.stability import marchal_bozis_state_ratio, mutual_hill_radius, tidal_disruption_radius
 from scatter_pop.errors import InputError
 
@@ -87,6 +88,7 @@ __all__ = ["SystemRun", "STAR_NAME"]
 
 HYBRID_CHECK_STEPS = 2000  # hybrid step re-checked every this many steps (~2 % Python overhead)
 STEP_CHANGE = 1.25  # ... and re-chosen when the wanted step differs by more than this factor
+END_ON_CHECK = 1e-12  # an end time this close (relative) to a chunk boundary counts as on it
 
 
 class SystemRun:
@@ -104,7 +106,8 @@ class SystemRun:
         self.events = False  # a merger, star contact or ejection since the step was chosen
         self.step_changes = []  # (t, dt) each time the hybrid step was re-chosen (diagnostics)
         identity = {"initial": asdict(initial), "integration": asdict(integration), "outcomes": asdict(outcomes)}
-        identity["integration"].pop("wall_seconds_max")
+        for key in ("wall_seconds_max", "end_time", "end_orbits"):  # a state continues to a later end
+            identity["integration"].pop(key)
         self.identity = json.loads(json.dumps(identity))
         if self.path is not None and self.path.exists():
             self.ledger, blob = read_checkpoint(self.path)
@@ -320,27 +323,54 @@ class SystemRun:
                 return EndReason.HILL_STABLE
         return None
 
+    def _sample_gap(self) -> None:
+        """Book the osculating gap of a bound pair at this check (the last GAP_CHECKS are kept)."""
+        gaps = self.ledger.recent_gaps
+        if self.sim.N - 1 == 2:
+            orbits = [astrocentric_orbit(self.sim, k) for k in (1, 2)]
+            if all(0.0 < a < math.inf and 0.0 <= e < 1.0 for a, e, _ in orbits):
+                ps = self.sim.particles
+                (a1, e1, _), (a2, e2, _) = orbits
+                gaps.append(orbit_gap_hill(ps[0].m, ps[1].m, ps[2].m, a1, e1, a2, e2))
+                del gaps[:-GAP_CHECKS]
+                return
+        gaps.clear()
+
     def run(self) -> SystemRecord:
+        """Integrate to a stopping rule, the end time or the wall-clock cap; the record.
+
+        Checks (ejections, stopping rules, gap samples, search radii, hybrid step, cap) happen
+        only at the chunk boundaries k * chunk, whatever the end time.  An end time inside a chunk
+        stops on the first step past it with no check, so that raising the end time later
+        continues from the stored state exactly as a run made with the later end time from the
+        start (the state is kept in the checkpoint file for that).
+        """
         start = time.perf_counter()
         spent_before = self.ledger.wall_seconds
         reason = self._settled() if self.sim.N <= 2 else None
         while reason is None:
-            target = min((self.ledger.chunks_done + 1) * self.chunk, self.t_end)
-            self.integrate_to(target)
+            boundary = (self.ledger.chunks_done + 1) * self.chunk
+            last = self.t_end - boundary <= END_ON_CHECK * boundary  # the end time is at this check or before
+            inside = last and boundary - self.t_end > END_ON_CHECK * boundary
+            self.integrate_to(self.t_end if inside else boundary)
+            if inside and not self._finished():
+                reason = EndReason.END_TIME  # inside a chunk: no check, the state stays continuable
+                break
             self.ledger.chunks_done += 1
             self._escape()  # eject unbound planets beyond the distance
+            self._sample_gap()
             reason = self._settled()
-            if reason is None and self.sim.t >= self.t_end:
-                reason = EndReason.END_TIME
             if reason is None:
                 self._set_search_radii()
                 if self.backend.hybrid:
                     self._follow_orbits()
-                if spent_before + time.perf_counter() - start >= self.integ.wall_seconds_max:
+                if last:
+                    reason = EndReason.END_TIME
+                elif spent_before + time.perf_counter() - start >= self.integ.wall_seconds_max:
                     reason = EndReason.CAPPED
         self.ledger.wall_seconds = spent_before + time.perf_counter() - start
-        if reason == EndReason.CAPPED:
-            if self.path is not None:
+        if reason in (EndReason.CAPPED, EndReason.END_TIME):
+            if self.path is not None:  # continued by a larger cap or a later end time
                 write_checkpoint(self.path, self.ledger, simulation_blob(self.sim))
         elif self.path is not None and self.path.exists():
             os.remove(self.path)
@@ -361,4 +391,9 @@ class SystemRun:
             steps=sim.steps_done,
             integrator=self.integ.integrator,
             circularisation_q=self.out.circularisation_q,
+            star_mass=float(sim.particles[0].m),
+            t_limit=self.t_end,
+            hill_margin=self.integ.hill_margin,
+            hill_ratio=marchal_bozis_state_ratio(*self.arrays(), sim.G) if sim.N == 3 else math.nan,
+            recent_gap=min(gaps) if len(gaps := self.ledger.recent_gaps) == GAP_CHECKS else math.nan,
         )

@@ -14,6 +14,7 @@ import numpy as np
 from scatter_pop.engine.initial_conditions import InitialSystem
 from scatter_pop.engine.ledger import Ledger
 from scatter_pop.engine.outcome import EndReason, Fate, PlanetRecord, SystemRecord
+from scatter_pop.engine.settlement import classify
 
 __all__ = ["build_record", "planet_name", "planet_index"]
 
@@ -40,6 +41,11 @@ def build_record(
     steps: int,
     integrator: str,
     circularisation_q: float,
+    star_mass: float | None = None,
+    t_limit: float = math.nan,
+    hill_margin: float = 1.01,
+    hill_ratio: float = math.nan,
+    recent_gap: float = math.nan,
     lanes: int = 0,
 ) -> SystemRecord:
     """The SystemRecord of a finished (or capped) integration.
@@ -63,6 +69,18 @@ def build_record(
     integrator : str
     circularisation_q : float
         Survivors with pericentre below this (AU) are flagged as tidal candidates.
+    star_mass : float, optional
+        The star's mass at the end (M_sun), for the settlement class (default: the initial one).
+    t_limit : float
+        The end time the system was integrated towards (yr); NaN: not continuable to a later one.
+    hill_margin : float
+        ``integration.hill_margin`` (default: the spec's default).
+    hill_ratio, recent_gap : float
+        Exact Hill ratio of a pair at the end and the smallest recent osculating gap (mutual Hill
+        radii), see :mod:`scatter_pop.engine.settlement`.
+
+    A planet still in the simulation whose astrocentric orbit is not an ellipse (a <= 0 or e >= 1)
+    gets the fate ``UNBOUND``, not ``SURVIVED``: survivors are bound planets.
     lanes : int
         SIMD lanes of the batch integrator that ran the system (0: one system at a time).
     """
@@ -71,6 +89,9 @@ def build_record(
         name = planet_name(i)
         state = survivors.get(name) or ledger.fates[name]
         alive = name in survivors
+        fate = Fate(state.fate)
+        if alive and not (state.a > 0 and 0 <= state.e < 1):
+            fate, alive = Fate.UNBOUND, False
         planets.append(
             PlanetRecord(
                 mass_initial=initial.mass[i],
@@ -86,14 +107,22 @@ def build_record(
                 radius_final=state.radius,
                 omega_final=state.omega,
                 node_final=state.node,
-                fate=Fate(state.fate),
-                t_fate=math.nan if alive else state.t,
+                fate=fate,
+                t_fate=math.nan if name in survivors else state.t,
                 merged_into=state.merged_into,
                 tidal_candidate=bool(alive and state.q < circularisation_q),
             )
         )
     l_now = np.asarray(angmom, dtype=float) + np.asarray(ledger.angmom_removed)
     l0 = np.asarray(ledger.l0)
+    settlement = classify(
+        reason,
+        planets,
+        initial.star_mass if star_mass is None else star_mass,
+        hill_ratio=hill_ratio,
+        recent_gap=recent_gap,
+        hill_margin=hill_margin,
+    )
     return SystemRecord(
         index=initial.index,
         seed=initial.seed,
@@ -106,5 +135,9 @@ def build_record(
         steps=int(steps),
         wall_seconds=ledger.wall_seconds,
         integrator=integrator,
+        t_limit=float(t_limit),
+        hill_ratio=float(hill_ratio),
+        recent_gap=float(recent_gap),
+        settlement=settlement,
         lanes=int(lanes),
     )

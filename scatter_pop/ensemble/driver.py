@@ -15,10 +15,13 @@ Fault handling
   :func:`~scatter_pop.engine.initial_conditions.draw_system`, final values missing, ``attempts`` = deaths.
 * A system whose integration raises is likewise isolated and recorded as failed; its traceback
   goes to ``DIR/failures.log``.  ``retry_failed=True`` computes failed systems again.
-* A system stopped by the wall-clock cap (end reason ``wall_clock_cap``) leaves a REBOUND
+* A system stopped by the wall-clock cap (end reason ``stopped_by_wall_clock_cap``) leaves a REBOUND
   checkpoint in ``DIR/checkpoints/``; it is continued from there by ``extend=True`` (another
   ``wall_seconds_max`` on top of the time it has used) or by a rerun whose
   ``integration.wall_seconds_max`` exceeds the time it has used (see :mod:`scatter_pop.ensemble.plan`).
+* A system stopped at the end time keeps its final state in ``DIR/checkpoints/`` (a few KB); a
+  rerun with a raised ``integration.end_time`` / ``end_orbits`` carries it further from there, bit
+  for bit as if the later end time had been asked from the start; settled systems are not touched.
 
 Test-only fault injection: a worker task that is about to integrate a system whose index is listed
 in the environment variable ``SCATTER_POP_TEST_KILL_SYSTEMS`` (comma-separated) sends SIGKILL to
@@ -308,8 +311,8 @@ class EnsembleRun:
         plan.store(task, data)
         self.timings.systems_computed += len(records)
         self.timings.integration_seconds += float(data["wall_seconds"].sum())
-        for r in records:  # a failed system keeps its checkpoint: --retry-failed continues it
-            if r.end_reason not in (EndReason.CAPPED, EndReason.FAILED):
+        for r in records:  # kept: capped and failed (continued, retried) and stopped at the end time
+            if r.end_reason not in (EndReason.CAPPED, EndReason.FAILED, EndReason.END_TIME):
                 plan.folder.checkpoint_path(r.index).unlink(missing_ok=True)
 
 

@@ -4,14 +4,22 @@ A :class:`Plan` is made from the part files already on disk (:mod:`scatter_pop.s
 
 * *new* systems are the indices ``0 .. run.systems-1`` that no part holds; they are cut into
   batches of consecutive indices, each written as a new part when it finishes;
-* *continued* systems are capped ones (end reason ``wall_clock_cap``).  The cap is a budget of
+* *continued* systems are capped ones (end reason ``stopped_by_wall_clock_cap``).  The cap is a budget of
   wall-clock seconds per system, counted over all its runs: a capped system whose time so far
   (``wall_seconds``) is below the spec's ``integration.wall_seconds_max`` (the cap was raised)
   continues up to it; with ``extend`` every capped system gets another ``wall_seconds_max`` on
   top of what it has used;
-* *retried* systems are failed ones when ``retry_failed`` is asked for.
+* *retried* systems are failed ones when ``retry_failed`` is asked for;
+* *carried further* systems are those stopped at the end time (end reason ``stopped_at_end_time``:
+  no stopping rule met, a snapshot) when the spec's end time is now later than the one they were
+  integrated towards (``t_limit``).  They continue from the final state kept in their checkpoint
+  file, with another ``wall_seconds_max`` on top of the time they have used; systems that settled
+  (a stopping rule ended them) are not touched.  Because checks fall on the same chunk boundaries
+  whatever the end time (:mod:`scatter_pop.engine.rebound_run`), the result equals a run made with
+  the later end time from the start.
 
-Continued and retried systems are recomputed per part and their rows replaced in that part.
+Continued and retried systems are recomputed per part, at most :data:`REDO_BATCH` to a task, and
+their rows replaced in that part.
 
 Consolidation: once :data:`CONSOLIDATE_PARTS` parts of adjacent ranges (none of them already a
 merged one) are on disk, they are merged into one file, so that a long run leaves a few hundred
@@ -36,11 +44,22 @@ from scatter_pop.ensemble.progress import Tally
 from scatter_pop.spec.reader import EnsembleSpec
 from scatter_pop.store.run_folder import Part, RunFolder, read_parts
 
-__all__ = ["Task", "Plan", "make_plan", "TARGET_TASK_SECONDS", "MAX_AUTO_BATCH", "CONSOLIDATE_PARTS"]
+__all__ = ["Task", "Plan", "make_plan", "end_time_of", "TARGET_TASK_SECONDS", "MAX_AUTO_BATCH", "CONSOLIDATE_PARTS"]
+
+
+def end_time_of(spec: EnsembleSpec, index: int) -> float:
+    """The end time (yr) system ``index`` is integrated towards under ``spec`` (as the engine computes it)."""
+    if spec.integration.end_time is not None:  # the same for every system
+        return spec.integration.end_time
+    from scatter_pop.engine.initial_conditions import draw_system
+
+    return spec.integration.end_time_years(draw_system(spec, index).inner_period())
+
 
 TARGET_TASK_SECONDS = 60.0
 MAX_AUTO_BATCH = 100
 CONSOLIDATE_PARTS = 64
+REDO_BATCH = 16  # continued systems per task (each finished task rewrites the part holding them)
 
 
 @dataclass(frozen=True)
@@ -79,6 +98,7 @@ class Plan:
         held = np.zeros(n, dtype=bool)
         self.redo: list[Task] = []
         self.kept_capped = 0
+        self.n_further = 0  # systems carried to a later end time
         cap = spec.integration.wall_seconds_max
         for p in parts:
             inside = p.data.sel(system=p.indices < n)
@@ -99,9 +119,15 @@ class Plan:
                     self.kept_capped += 1
             if retry_failed:
                 again.update({int(i): cap for i in idx[reason == int(EndReason.FAILED)]})
-            if again:
-                order = sorted(again)
-                self.redo.append(Task(tuple(order), True, tuple(again[i] for i in order)))
+            stopped = reason == int(EndReason.END_TIME)
+            for i, used, limit in zip(idx[stopped], spent[stopped], inside["t_limit"].values[stopped]):
+                if end_time_of(spec, int(i)) > limit:
+                    again[int(i)] = float(used) + cap
+                    self.n_further += 1
+            order = sorted(again)
+            for k in range(0, len(order), REDO_BATCH):  # several tasks, so that carrying a run further is parallel
+                chunk = order[k : k + REDO_BATCH]
+                self.redo.append(Task(tuple(chunk), True, tuple(again[i] for i in chunk)))
         self.n_continue = sum(len(t.indices) for t in self.redo)
         missing = np.flatnonzero(~held)
         self.n_new = int(missing.size)
@@ -184,8 +210,10 @@ class Plan:
     def summary(self) -> str:
         n = self.spec.run.systems
         words = [f"{self.n_new} new systems"]
-        if self.n_continue:
-            words.append(f"{self.n_continue} capped/failed systems again")
+        if self.n_further:
+            words.append(f"{self.n_further} systems carried from their end time to the later one")
+        if self.n_continue - self.n_further:
+            words.append(f"{self.n_continue - self.n_further} capped/failed systems again")
         text = (
             f"run folder {self.folder.path}: {self.tally.systems}/{n} systems on disk; computing "
             f"{' and '.join(words)}; batch size {self.batch_size or 'automatic'}"

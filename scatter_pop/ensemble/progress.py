@@ -15,7 +15,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import xarray as xr
 
-from scatter_pop.engine.outcome import EndReason, Fate
+from scatter_pop.engine.outcome import EndReason, Fate, Settlement
 
 __all__ = ["Tally", "Progress", "format_duration"]
 
@@ -38,12 +38,18 @@ class Tally:
     ``fates`` and ``reasons`` map the codes of :class:`~scatter_pop.engine.outcome.Fate` and
     :class:`~scatter_pop.engine.outcome.EndReason` to counts; ``cpu_seconds`` sums each system's
     ``wall_seconds`` (one thread per system, so it is the CPU time spent integrating).
+    ``settlement`` counts the settlement classes; ``open_cpu_seconds`` and ``open_years`` sum the CPU
+    time and the integrated time of the systems stopped at the end time (those a raised end time
+    continues), whose ratio is their measured cost per simulated year.
     """
 
     systems: int = 0
     fates: dict = field(default_factory=lambda: {f: 0 for f in Fate})
     reasons: dict = field(default_factory=lambda: {r: 0 for r in EndReason})
     cpu_seconds: float = 0.0
+    settlement: dict = field(default_factory=lambda: {c: 0 for c in Settlement})
+    open_cpu_seconds: float = 0.0
+    open_years: float = 0.0
     capped: list = field(default_factory=list)
     failed: list = field(default_factory=list)
 
@@ -58,6 +64,12 @@ class Tally:
         for r in EndReason:
             self.reasons[r] += sign * int((reason == int(r)).sum())
         self.cpu_seconds += sign * float(np.nansum(ds["wall_seconds"].values))
+        classes = ds["settlement"].values
+        for c in Settlement:
+            self.settlement[c] += sign * int((classes == int(c)).sum())
+        stopped = reason == int(EndReason.END_TIME)
+        self.open_cpu_seconds += sign * float(np.nansum(ds["wall_seconds"].values[stopped]))
+        self.open_years += sign * float(np.nansum(ds["t_end"].values[stopped]))
         idx = ds["system"].values
         for name, code in (("capped", EndReason.CAPPED), ("failed", EndReason.FAILED)):
             chosen = idx[reason == int(code)].tolist()

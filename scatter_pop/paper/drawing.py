@@ -65,7 +65,9 @@ BRANCH_STYLE = {
     "merger": (OKABE_ITO["bluish_green"], "s"),
     "star": (OKABE_ITO["orange"], "D"),
     "several": (OKABE_ITO["reddish_purple"], "v"),
+    "unsettled": ("0.55", "h"),  # grey: not an outcome, a snapshot at the end time
 }
+UNSETTLED_HATCH = "////"
 _ENSEMBLE_COLOURS = ("blue", "vermillion", "bluish_green", "orange", "reddish_purple", "sky_blue")
 _DASHES = ("-", "--", "-.", ":")
 
@@ -199,12 +201,21 @@ def draw_e_cdf(ax, cdf: Table, stats: Table | None = None, *, target_e: float | 
 
 
 def draw_a_e(ax, points: Table, lines: Table, *, target: Table | None = None, title: str = "") -> None:
-    """Survivors in the a–e plane by branch, lines of constant pericentre, the target with 1σ bars."""
+    """Survivors in the a–e plane by branch, labelled lines of constant pericentre, the target.
+
+    The a axis spans the lines' range (chosen from the survivors'); a target outside it is named
+    in a note instead of stretching the axis.
+    """
+    a_min = float(lines["a_au"].min()) if len(lines) else None
+    a_max = float(lines["a_au"].max()) if len(lines) else None
     for q in dict.fromkeys(lines["q_au"].tolist()):
         rows = lines.where(q_au=q)
         ax.plot(rows["a_au"], rows["e"], color="0.6", lw=0.6, ls="--", zorder=1)
-        if rows["a_au"][0] <= 2 * q <= rows["a_au"][-1]:  # label where the line crosses e = 0.5
-            ax.annotate(f"q={q:g} AU", (2 * q, 0.5), fontsize=5, color="0.35", rotation=60, ha="right", va="center")
+        k = int(np.argmin(np.abs(rows["e"] - 0.55)))  # label where the line is nearest mid-height
+        if 0.03 < float(rows["e"][k]) < 0.97:
+            ax.annotate(
+                f"q={q:g} AU", (float(rows["a_au"][k]), float(rows["e"][k])), fontsize=5, color="0.35", ha="left"
+            )
     for b in BRANCHES:
         rows = points.where(branch=b)
         if len(rows):
@@ -221,22 +232,37 @@ def draw_a_e(ax, points: Table, lines: Table, *, target: Table | None = None, ti
                 zorder=2,
             )
     if target is not None and len(target):
-        ax.errorbar(
-            target["a_au"],
-            target["e"],
-            xerr=target["a_err_au"],
-            yerr=target["e_err"],
-            fmt="*",
-            ms=8,
-            color=OKABE_ITO["black"],
-            mfc=OKABE_ITO["yellow"],
-            mew=0.6,
-            lw=0.8,
-            capsize=1.5,
-            label=str(target["name"][0]),
-            zorder=3,
-        )
+        t_a = float(target["a_au"][0])
+        if a_min is None or a_min <= t_a <= a_max:
+            ax.errorbar(
+                target["a_au"],
+                target["e"],
+                xerr=target["a_err_au"],
+                yerr=target["e_err"],
+                fmt="*",
+                ms=8,
+                color=OKABE_ITO["black"],
+                mfc=OKABE_ITO["yellow"],
+                mew=0.6,
+                lw=0.8,
+                capsize=1.5,
+                label=str(target["name"][0]),
+                zorder=3,
+            )
+        else:
+            side = "left" if t_a < a_min else "right"
+            ax.text(
+                0.02 if side == "left" else 0.98,
+                0.02,
+                f"{target['name'][0]} at a = {t_a:.3g} AU: off the {side} edge",
+                transform=ax.transAxes,
+                fontsize=5,
+                ha=side,
+                va="bottom",
+            )
     ax.set_xscale("log")
+    if a_min is not None:
+        ax.set_xlim(a_min, a_max)
     ax.set_ylim(0.0, 1.0)
     ax.set_xlabel("final semi-major axis a [AU]")
     ax.set_ylabel("final eccentricity e")
@@ -246,15 +272,22 @@ def draw_a_e(ax, points: Table, lines: Table, *, target: Table | None = None, ti
 
 
 def draw_branching(ax, table: Table) -> None:
-    """Fraction of systems per branch, grouped by ensemble, with binomial error bars."""
+    """Fraction of systems per branch, grouped by ensemble, with binomial error bars.
+
+    The ``unsettled`` bar (systems stopped at the end time, not an outcome) is hatched and grey
+    edged, with its own legend entry.
+    """
+    from matplotlib.patches import Patch
+
     ensembles = list(dict.fromkeys(table["ensemble"].tolist()))
     width = 0.8 / max(len(ensembles), 1)
     x0 = np.arange(len(BRANCHES))
+    unsettled = np.array([b == "unsettled" for b in BRANCHES])
     for i, ens in enumerate(ensembles):
         rows = table.where(ensemble=ens)
         x = x0 + (i - (len(ensembles) - 1) / 2) * width
         err = np.vstack([rows["fraction"] - rows["low"], rows["high"] - rows["fraction"]])
-        ax.bar(
+        bars = ax.bar(
             x,
             rows["fraction"],
             width=width,
@@ -263,24 +296,44 @@ def draw_branching(ax, table: Table) -> None:
             error_kw={"lw": 0.7, "capsize": 1.5},
             label=f"{ens} (N={int(rows['n'][0])})",
         )
+        for bar, branch in zip(bars, rows["branch"]):
+            if branch == "unsettled":
+                bar.set_facecolor("white")
+                bar.set_edgecolor(BRANCH_STYLE["unsettled"][0])
+                bar.set_hatch(UNSETTLED_HATCH)
+    if unsettled.any():
+        ax.axvspan(x0[unsettled][0] - 0.45, x0[unsettled][0] + 0.45, color="0.93", zorder=0)
+        handles, labels = ax.get_legend_handles_labels()
+        handles.append(Patch(facecolor="white", edgecolor=BRANCH_STYLE["unsettled"][0], hatch=UNSETTLED_HATCH))
+        labels.append("unsettled: a snapshot at the end time, not an outcome")
+        ax.legend(handles, labels, loc="upper left")
+    else:
+        _legend(ax, loc="upper right")
     ax.set_xticks(x0, [BRANCH_LABELS[b].replace(" ", "\n", 1) for b in BRANCHES], fontsize=6)
     ax.set_ylabel("fraction of systems")
     ax.set_ylim(0.0, 1.0)
-    _legend(ax, loc="upper right")
 
 
 def draw_instability(ax, table: Table) -> None:
-    """CDF of the time of the first close encounter (log time), one line per ensemble."""
+    """CDF of the time of the first close encounter (log time), one line per ensemble; the end
+    time of the integrations marked (a band when systems had different end times)."""
     for i, ens in enumerate(dict.fromkeys(table["ensemble"].tolist())):
         rows = table.where(ensemble=ens)
+        colour = ensemble_colour(i)
         ax.step(
             rows["t_yr"],
             rows["cdf"],
             where="post",
-            color=ensemble_colour(i),
+            color=colour,
             ls=_DASHES[i % len(_DASHES)],
             label=f"{ens} (N={int(rows['n_systems'][0])})",
         )
+        if len(rows):
+            lo, hi = float(rows["t_limit_min_yr"][0]), float(rows["t_limit_max_yr"][0])
+            if hi > lo * 1.05:  # a band only when it can be seen on the log axis
+                ax.axvspan(lo, hi, color=colour, alpha=0.15, lw=0, label=f"end of the integrations ({ens})")
+            else:
+                ax.axvline(hi, color=colour, lw=0.9, ls=":", label=f"end of the integrations ({ens})")
     ax.set_xscale("log")
     ax.set_ylim(0.0, 1.0)
     ax.set_xlabel("time of first close encounter [yr]")
@@ -289,7 +342,8 @@ def draw_instability(ax, table: Table) -> None:
 
 
 def draw_e_vs_mass_ratio(ax, points: Table, medians: Table | None = None, *, title: str = "") -> None:
-    """Final e against initial mass ratio, points by branch, binned medians with 16–84 % bars."""
+    """Final e against initial mass ratio, points by branch, binned medians with 16–84 % bars
+    (each drawn at the median mass ratio of its bin's points, not at the bin centre)."""
     for b in BRANCHES:
         rows = points.where(branch=b)
         if len(rows):
@@ -298,17 +352,17 @@ def draw_e_vs_mass_ratio(ax, points: Table, medians: Table | None = None, *, tit
                 rows["mass_ratio"], rows["e"], s=5, marker=marker, color=colour, lw=0, alpha=0.7, label=BRANCH_LABELS[b]
             )
     if medians is not None and len(medians):
-        mid = 0.5 * (medians["x_low"] + medians["x_high"])
+        mid = medians["x_median"]
         ax.errorbar(
             mid,
             medians["median"],
             yerr=[medians["median"] - medians["p16"], medians["p84"] - medians["median"]],
-            fmt="o-",
+            fmt="o",
             color=OKABE_ITO["black"],
             ms=3,
             lw=0.9,
             capsize=1.5,
-            label="median, 16-84 %",
+            label="median of settled + likely stable, 16-84 %",
         )
     ax.set_xlim(0.0, 1.02)
     ax.set_ylim(0.0, 1.0)

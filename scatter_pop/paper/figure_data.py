@@ -5,10 +5,11 @@ made here and nothing else; the same tables are written as CSV beside the
 figure, so a reader can check or re-plot every point.  Units are in the
 column names (``a_au``, ``t_yr``); masses never appear (mass ratios only).
 
-Survivors are the bound surviving planets (a > 0, 0 <= e < 1) of the systems
-that pass :func:`scatter_pop.store.schema.quality_mask` (failed, capped and
+Survivors are :func:`scatter_pop.store.schema.survivor_mask`'s (fate ``survived``: bound planets)
+of the systems that pass :func:`scatter_pop.store.schema.quality_mask` (failed, capped and
 energy-flagged systems left out), the same rule as
-:func:`scatter_pop.survey.forward_model.survivor_table`.
+:func:`scatter_pop.survey.forward_model.survivor_table`.  Systems whose outcome is not final
+(settlement ``unsettled``) are their own branch, ``unsettled``, in every figure.
 """
 
 from __future__ import annotations
@@ -35,6 +36,7 @@ __all__ = [
     "comparison_stats_table",
     "a_e_points",
     "pericentre_lines",
+    "survivors_a_range",
     "target_table",
     "branching_table",
     "instability_cdf",
@@ -103,12 +105,9 @@ def bound_survivors(
     ds: xr.Dataset, *, energy_tolerance: float = ENERGY_TOLERANCE_DEFAULT, include_capped: bool = False
 ) -> np.ndarray:
     """Mask (system × planet) of bound survivors of the systems used."""
-    keep = np.asarray(
+    return np.asarray(
         survivor_mask(ds, energy_tolerance=energy_tolerance, include_capped=include_capped).values, dtype=bool
     )
-    a, e = ds["a_final"].values, ds["e_final"].values
-    with np.errstate(invalid="ignore"):
-        return keep & (a > 0) & (e >= 0) & (e < 1)
 
 
 def e_histogram_by_branch(runs, *, bins=E_BINS, **quality) -> Table:
@@ -212,8 +211,22 @@ def a_e_points(runs, **quality) -> Table:
     return _concat(out)
 
 
-def pericentre_lines(a_min: float, a_max: float, q_values=PERICENTRE_LINES_AU, n: int = 200) -> Table:
+def survivors_a_range(points: Table, margin: float = 1.25) -> tuple[float, float]:
+    """The a range [AU] of the a–e plane: the survivors' range widened by ``margin`` each way
+    (a decade around 1 AU when there are none)."""
+    a = points["a_au"] if len(points) else np.array([])
+    a = a[np.isfinite(a) & (a > 0)]
+    if a.size == 0:
+        return 0.3, 3.0
+    lo, hi = float(a.min()) / margin, float(a.max()) * margin
+    return (lo, hi) if hi > lo * 1.5 else (lo / 1.25, hi * 1.25)
+
+
+def pericentre_lines(a_min: float, a_max: float, q_values=None, n: int = 200) -> Table:
     """Lines of constant pericentre e = 1 − q/a on a log grid of a [AU] (e >= 0 only).
+
+    Without ``q_values``: those of :data:`PERICENTRE_LINES_AU` that cross the range, or, when
+    none does, three pericentres spread over it.
 
     Returns
     -------
@@ -221,6 +234,10 @@ def pericentre_lines(a_min: float, a_max: float, q_values=PERICENTRE_LINES_AU, n
         ``q_au``, ``a_au``, ``e``.
     """
     a = np.geomspace(a_min, a_max, n)
+    if q_values is None:
+        q_values = [q for q in PERICENTRE_LINES_AU if a_min * 0.05 < q < a_max * 0.95]
+        if not q_values:
+            q_values = [float(f"{x:.2g}") for x in np.geomspace(a_min * 0.2, a_max * 0.8, 3)]
     out = []
     for q in q_values:
         sel = a >= q
@@ -267,7 +284,9 @@ def instability_cdf(runs, **quality) -> Table:
     Returns
     -------
     Table
-        ``ensemble``, ``t_yr``, ``cdf``, ``n_systems``.
+        ``ensemble``, ``t_yr``, ``cdf``, ``n_systems``, and the end times the systems were
+        integrated towards, ``t_limit_min_yr`` and ``t_limit_max_yr`` (no encounter after
+        them can be seen).
     """
     out = []
     for label, ds in runs:
@@ -275,12 +294,17 @@ def instability_cdf(runs, **quality) -> Table:
         t = ds["t_first_encounter"].values[use].astype(float)
         n = int(use.sum())
         x = np.sort(t[np.isfinite(t)])
+        limit = ds["t_limit"].values[use].astype(float)
+        limit = limit[np.isfinite(limit)]
+        lo, hi = (float(limit.min()), float(limit.max())) if limit.size else (np.nan, np.nan)
         out.append(
             _table(
                 ensemble=[label] * x.size,
                 t_yr=x,
                 cdf=np.arange(1, x.size + 1) / max(n, 1),
                 n_systems=np.full(x.size, n),
+                t_limit_min_yr=np.full(x.size, lo),
+                t_limit_max_yr=np.full(x.size, hi),
             )
         )
     return _concat(out)
@@ -312,7 +336,8 @@ def binned_median(points: Table, x: str, y: str, edges, *, group: str = "ensembl
     Returns
     -------
     Table
-        ``<group>``, ``x_low``, ``x_high``, ``median``, ``p16``, ``p84``, ``count``.
+        ``<group>``, ``x_low``, ``x_high``, ``x_median`` (median x of the bin's points: where the
+        median is drawn, on the data), ``median``, ``p16``, ``p84``, ``count``.
     """
     edges = np.asarray(edges, dtype=float)
     out = []
@@ -325,8 +350,19 @@ def binned_median(points: Table, x: str, y: str, edges, *, group: str = "ensembl
             v = sub[y][idx == i]
             if v.size >= min_count:
                 p16, med, p84 = np.percentile(v, [16, 50, 84])
-                rows.append((edges[i], edges[i + 1], med, p16, p84, v.size))
+                rows.append((edges[i], edges[i + 1], float(np.median(sub[x][idx == i])), med, p16, p84, v.size))
         if rows:
-            lo, hi, med, p16, p84, cnt = map(np.asarray, zip(*rows))
-            out.append(_table(**{group: [g] * lo.size}, x_low=lo, x_high=hi, median=med, p16=p16, p84=p84, count=cnt))
+            lo, hi, xm, med, p16, p84, cnt = map(np.asarray, zip(*rows))
+            out.append(
+                _table(
+                    **{group: [g] * lo.size},
+                    x_low=lo,
+                    x_high=hi,
+                    x_median=xm,
+                    median=med,
+                    p16=p16,
+                    p84=p84,
+                    count=cnt,
+                )
+            )
     return _concat(out)

@@ -13,7 +13,10 @@ Figures (file stems):
 ``a_e_plane``              survivors in the a–e plane, lines of constant pericentre, the target
 ``branching_ratios``       fraction of systems per branch with binomial error bars
 ``instability_times``      CDF of the time of the first close encounter
-``e_vs_mass_ratio``        final e against the initial mass ratio, binned medians
+``e_vs_mass_ratio``        final e against the initial mass ratio, binned medians of the settled and
+                           likely-stable survivors (only when the mass ratio varies)
+
+Unsettled systems (snapshots at the end time) are their own branch in every figure.
 """
 
 from __future__ import annotations
@@ -171,10 +174,7 @@ def write_figure_set(
         written.append(_write(out, "e_cdf", fig, {"": cdf, **({"stats": stats} if stats else {})}, formats))
 
         points = fd.a_e_points(runs, **quality)
-        a_all = points["a_au"] if len(points) else np.array([1.0])
-        a_lo = min(float(a_all.min()), target.a - target.a_err if target else np.inf) * 0.8
-        a_hi = max(float(a_all.max()), target.a + target.a_err if target else 0.0) * 1.25
-        lines = fd.pericentre_lines(max(a_lo, 1e-3), a_hi)
+        lines = fd.pericentre_lines(*fd.survivors_a_range(points))
         ttab = fd.target_table(target) if target is not None else None
         tables = {"": points, "lines": lines, **({"target": ttab} if ttab is not None else {})}
         written.append(
@@ -200,20 +200,23 @@ def write_figure_set(
         written.append(_write(out, "instability_times", fig, {"": inst}, formats))
 
         emr = fd.e_vs_mass_ratio(runs, **quality)
-        med = fd.binned_median(emr, "mass_ratio", "e", MASS_RATIO_EDGES)
-        written.append(
-            _per_ensemble(
-                out,
-                "e_vs_mass_ratio",
-                labels,
-                width,
-                formats,
-                {"": emr, "medians": med},
-                lambda ax, lab: fg.draw_e_vs_mass_ratio(
-                    ax, emr.where(ensemble=lab), med.where(ensemble=lab) if len(med) else None, title=lab
-                ),
+        final = fd.Table({k: v[emr["branch"] != "unsettled"] for k, v in emr.columns.items()}) if len(emr) else emr
+        med = fd.binned_median(final, "mass_ratio", "e", MASS_RATIO_EDGES)  # outcomes only, not snapshots
+        ratios = emr["mass_ratio"] if len(emr) else np.array([])
+        if ratios.size and np.ptp(ratios) > 0:  # nothing to show when the mass ratio does not vary
+            written.append(
+                _per_ensemble(
+                    out,
+                    "e_vs_mass_ratio",
+                    labels,
+                    width,
+                    formats,
+                    {"": emr, "medians": med},
+                    lambda ax, lab: fg.draw_e_vs_mass_ratio(
+                        ax, emr.where(ensemble=lab), med.where(ensemble=lab) if len(med) else None, title=lab
+                    ),
+                )
             )
-        )
     latex = out / "outcomes_table.tex"
     latex.write_text(latex_table(branching, stats, confidence=confidence), encoding="utf-8")
     return FigureSet(tuple(written), latex, out / "branching_ratios.csv")

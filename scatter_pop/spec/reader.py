@@ -32,6 +32,7 @@ __all__ = [
     "OutcomeSpec",
     "EnsembleSpec",
     "load_spec",
+    "with_systems",
     "parse_spec",
     "INTEGRATORS",
 ]
@@ -99,6 +100,9 @@ class PlanetsSpec:
     radius: float | None  # AU
 
 
+END_KEYS = ("end_time", "end_orbits")  # the integration keys that set where a run ends
+
+
 @dataclass(frozen=True)
 class IntegrationSpec:
     integrator: str = "taylor"  # falls back to FALLBACK_INTEGRATOR where heyoka cannot be imported
@@ -155,6 +159,25 @@ class EnsembleSpec:
         """SHA-256 of :meth:`identity` (canonical JSON)."""
         text = json.dumps(self.identity(), sort_keys=True, default=repr)
         return hashlib.sha256(text.encode()).hexdigest()
+
+    def lineage(self) -> dict:
+        """:meth:`identity` without the end time (``integration.end_time`` / ``end_orbits``): specs of
+        equal lineage integrate every system along the same trajectory, only for longer or shorter,
+        so a run folder's records carry over when the end time is raised."""
+        ident = self.identity()
+        for key in END_KEYS:
+            ident["integration"].pop(key)
+        return ident
+
+    def lineage_digest(self) -> str:
+        """SHA-256 of :meth:`lineage` (canonical JSON): what a run folder's part files belong to."""
+        text = json.dumps(self.lineage(), sort_keys=True, default=repr)
+        return hashlib.sha256(text.encode()).hexdigest()
+
+    def end_setting(self) -> tuple[str, float]:
+        """The end-time key in use and its value: ``("end_time", yr)`` or ``("end_orbits", orbits)``."""
+        integ = self.integration
+        return ("end_time", integ.end_time) if integ.end_time is not None else ("end_orbits", integ.end_orbits)
 
 
 #: The keys each section takes (docs/spec.md lists every one; tests/spec/test_spec.py checks it).
@@ -403,6 +426,32 @@ def parse_spec(text: str, source: str = "<spec>") -> EnsembleSpec:
 
     cluster = ClusterConfig.from_table(cluster_table)
     return EnsembleSpec(run, star, planets, integration, outcomes, cluster, text=text, source=source)
+
+
+def with_systems(spec: EnsembleSpec, systems: int) -> EnsembleSpec:
+    """The same spec with ``run.systems`` set to ``systems`` (its TOML text edited, so that the text
+    a run folder keeps parses back to it)."""
+    import re
+
+    if systems < 1:
+        raise InputError(f"run.systems {systems}: must be an integer >= 1")
+    text = spec.text
+    head = re.search(r"(?m)^\s*\[run\]\s*(#.*)?$", text)
+    if head is None:
+        raise InputError("spec: no [run] table to set run.systems in")
+    nxt = re.search(r"(?m)^\s*\[", text[head.end() :])
+    end = head.end() + (nxt.start() if nxt else len(text) - head.end())
+    body = text[head.end() : end]
+    line = re.compile(r"(?m)^(\s*systems\s*=\s*)[0-9_]+")
+    body = (
+        line.sub(lambda m: f"{m.group(1)}{systems}", body, count=1)
+        if line.search(body)
+        else f"\nsystems = {systems}" + body
+    )
+    out = parse_spec(text[: head.end()] + body + text[end:], spec.source or "<spec>")
+    if out.run.systems != systems or out.lineage_digest() != spec.lineage_digest():
+        raise InputError("spec: run.systems could not be set in its text; write it as `systems = N` in [run]")
+    return out
 
 
 def load_spec(path) -> EnsembleSpec:

@@ -1,7 +1,8 @@
 """Part files: the records of consecutive systems in one netCDF file; reading, checking, stacking.
 
 A part ``part_<first>_<last>.nc`` holds systems ``first..last`` (inclusive) in the schema of
-:mod:`scatter_pop.store.schema`, plus the global attributes ``spec_digest`` (whose spec it belongs to)
+:mod:`scatter_pop.store.schema`, plus the global attributes ``spec_digest`` (the lineage digest of the spec it belongs to: the identity
+without the end time, :meth:`EnsembleSpec.lineage_digest`)
 and, for a part made by merging smaller ones, ``consolidated = 1``.  Parts are written by
 :class:`scatter_pop.store.run_folder.RunFolder`; this module only reads and combines them.
 """
@@ -73,7 +74,7 @@ def scan(parts_dir: Path, digest: str, n_planets: int):
     parts_dir : Path
         The run folder's ``parts`` folder (may be missing).
     digest : str
-        Identity of the spec the parts must belong to (:meth:`EnsembleSpec.digest`).
+        Lineage of the spec the parts must belong to (:meth:`EnsembleSpec.lineage_digest`).
     n_planets : int
         Planets per system in that spec.
     """

@@ -34,7 +34,7 @@ from scatter_pop.errors import InputError
 from scatter_pop.spec.reader import EnsembleSpec, parse_spec
 from scatter_pop.store.atomic import atomic_write_netcdf, atomic_write_text
 from scatter_pop.store.parts import Part, drop_contained, load, part_name, scan, stack
-from scatter_pop.store.schema import validate_dataset
+from scatter_pop.store.schema import SETTLEMENT_RULE, validate_dataset
 
 __all__ = [
     "RunFolder",
@@ -45,6 +45,7 @@ __all__ = [
     "open_ensemble",
     "read_parts",
     "versions",
+    "end_time_change",
     "part_name",
     "SPEC_FILE",
     "ENSEMBLE_FILE",
@@ -188,7 +189,7 @@ class RunFolder:
         Returns the good parts (sorted by first index) and one report line per part moved aside.
         """
         good, reports = [], []
-        for path, first, last, part, problem in scan(self.parts_dir, spec.digest(), spec.planets.count):
+        for path, first, last, part, problem in scan(self.parts_dir, spec.lineage_digest(), spec.planets.count):
             if part is not None:
                 good.append(part)
                 continue
@@ -212,7 +213,7 @@ class RunFolder:
         if not np.array_equal(idx, np.arange(first, last + 1)):
             raise ValueError(f"a part must hold consecutive systems, got {idx.tolist()}")
         data = data.copy()
-        data.attrs.update(spec_digest=spec.digest(), date_written=_utc_now())
+        data.attrs.update(spec_digest=spec.lineage_digest(), date_written=_utc_now())
         self.parts_dir.mkdir(parents=True, exist_ok=True)
         path = self.parts_dir / part_name(first, last)
         atomic_write_netcdf(data, path)
@@ -271,6 +272,7 @@ class RunFolder:
             "star_mass": float(spec.star.mass),  # M_sun
             "spec_digest": spec.digest(),
             "spec_toml": spec.text,
+            "settlement_rule": SETTLEMENT_RULE,
             **versions(),
         }
 
@@ -301,17 +303,40 @@ def _flat(d: dict, prefix: str = "") -> dict:
 
 
 def _identity_differences(old: EnsembleSpec, new: EnsembleSpec) -> list[str]:
-    """``key old -> new`` for each identity entry that differs (internal units)."""
-    a, b = _flat(old.identity()), _flat(new.identity())
+    """``key old -> new`` for each identity entry that differs (internal units), the end time apart
+    (see :func:`end_time_change`)."""
+    a, b = _flat(old.lineage()), _flat(new.lineage())
     keys = sorted(k for k in a.keys() | b.keys() if a.get(k) != b.get(k))
     return [f"{'run.seed' if k == 'seed' else k} {a.get(k)!r} -> {b.get(k)!r}" for k in keys]
+
+
+def end_time_change(old: EnsembleSpec, new: EnsembleSpec, where: str = "DIR") -> bool:
+    """True when ``new`` raises the end time of ``old`` (the only change of it a run folder takes).
+
+    Raises InputError when the end time is lowered or given by the other key (``end_time`` in yr
+    against ``end_orbits`` in inner orbits): records integrated further cannot be cut back.
+    """
+    (k_old, v_old), (k_new, v_new) = old.end_setting(), new.end_setting()
+    if k_old != k_new:
+        raise InputError(
+            f"integration.{k_new}: {where} holds a run ended by integration.{k_old} = {v_old!r}; keep that key "
+            "(raise its value to carry the run further) or use another folder"
+        )
+    if v_new < v_old:
+        raise InputError(
+            f"integration.{k_new} = {v_new!r}: {where} holds systems integrated to {v_old!r}; the end time can "
+            "only be raised in a run folder (use another folder for a shorter run)"
+        )
+    return v_new > v_old
 
 
 def prepare_folder(spec: EnsembleSpec, out, *, fresh: bool = False, dry_run: bool = False, log=print) -> RunFolder:
     """Check that ``out`` can hold a run of ``spec``; with ``fresh`` move an old run aside.
 
-    A folder holding a run of a spec with another identity (:meth:`EnsembleSpec.digest`) is
-    refused with InputError unless ``fresh``; then (and whenever ``fresh`` finds an old run) the
+    A raised end time (same key, larger value) is accepted: the folder's unsettled systems are
+    then continued (:mod:`scatter_pop.ensemble.plan`); a lowered one is refused.  A folder holding a
+    run of a spec with another lineage (:meth:`EnsembleSpec.lineage`: the identity without the end
+    time) is refused with InputError unless ``fresh``; then (and whenever ``fresh`` finds an old run) the
     old folder is renamed to ``<out>.replaced-<UTC time>``, never deleted or mixed.  A non-empty
     folder that is not a run folder is always refused.  With ``dry_run`` nothing is changed.
     """
@@ -327,21 +352,24 @@ def prepare_folder(spec: EnsembleSpec, out, *, fresh: bool = False, dry_run: boo
         )
     try:
         old = folder.stored_spec("--out")
-        changed = _identity_differences(old, spec)
     except InputError:
         if not fresh:
             raise InputError(
                 f"--out {str(folder.path)!r}: its {SPEC_FILE} is not a valid spec; "
                 "rerun with --fresh to move the old folder aside"
             ) from None
-        changed = ["(unreadable)"]
+        old = None
+    changed = _identity_differences(old, spec) if old is not None else ["(unreadable)"]
     if changed and not fresh:
         raise InputError(
             f"--out {str(folder.path)!r}: holds a run of a different spec (changed: "
             f"{'; '.join(changed[:3])}{'; ...' if len(changed) > 3 else ''}); only run.name, "
-            "run.systems, run.batch_size, integration.wall_seconds_max and [cluster] may change "
-            "in a run folder; rerun with --fresh to move the old run aside, or choose another --out"
+            "run.systems, run.batch_size, integration.wall_seconds_max, [cluster] and a raised "
+            "integration.end_time / end_orbits may change in a run folder; rerun with --fresh to move "
+            "the old run aside, or choose another --out"
         )
+    if old is not None and not fresh:
+        end_time_change(old, spec, f"--out {str(folder.path)!r}")
     if fresh:
         if folder.locked_by_other():
             raise InputError(f"--fresh: {str(folder.path)!r} is in use by a running scatter-pop run")
@@ -388,7 +416,7 @@ def read_parts(folder: RunFolder, spec: EnsembleSpec) -> tuple[list[Part], list[
     """Parts that load and match ``spec``, without moving or deleting anything (read-only callers);
     and one line per part that does not."""
     good, bad = [], []
-    for path, _, _, part, problem in scan(folder.parts_dir, spec.digest(), spec.planets.count):
+    for path, _, _, part, problem in scan(folder.parts_dir, spec.lineage_digest(), spec.planets.count):
         if part is None:
             bad.append(f"{path.name}: {problem}")
         else:

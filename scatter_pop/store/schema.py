@@ -20,7 +20,8 @@ from dataclasses import dataclass
 import numpy as np
 import xarray as xr
 
-from scatter_pop.engine.outcome import EndReason, Fate, SystemRecord
+from scatter_pop.engine.outcome import EndReason, Fate, Settlement, SystemRecord
+from scatter_pop.engine.settlement import RULE as SETTLEMENT_RULE
 
 __all__ = [
     "Var",
@@ -34,6 +35,8 @@ __all__ = [
     "validate_dataset",
     "quality_mask",
     "survivor_mask",
+    "settlement_mask",
+    "SETTLEMENT_RULE",
 ]
 
 FILL_INT = -1  # fill of int8 codes for systems with no result
@@ -81,13 +84,34 @@ VARIABLES: tuple[Var, ...] = (
     ),
     # per system
     Var("seed", S, "u8", "1", "64-bit seed of the system's initial-condition draws"),
-    Var("n_survivors", S, "i1", "1", "number of surviving planets"),
+    Var("n_survivors", S, "i1", "1", "number of surviving (bound) planets"),
+    Var("n_unbound", S, "i1", "1", "number of planets still present but unbound from the star at the end"),
     Var("n_ejected", S, "i1", "1", "number of ejected planets"),
     Var("n_merged", S, "i1", "1", "number of planet-planet mergers"),
     Var("n_star", S, "i1", "1", "number of planets lost to the star (collision or tidal disruption)"),
     Var("t_first_encounter", S, "f8", "yr", "time of the first separation below one mutual Hill radius"),
     Var("t_end", S, "f8", "yr", "time the integration stopped"),
     Var("end_reason", S, "i1", "1", "rule that ended the integration", flags=EndReason),
+    # the end time asked, not physics: a settled system keeps the one of the run that settled it
+    Var("t_limit", S, "f8", "yr", "end time the system was integrated towards", physics=False),
+    Var(
+        "settlement",
+        S,
+        "i1",
+        "1",
+        "whether the outcome is final (rule in the global attribute settlement_rule)",
+        flags=Settlement,
+    ),
+    Var(
+        "hill_ratio", S, "f8", "1", "exact Marchal-Bozis Hill-stability ratio of a pair at the end (NaN: not 2 planets)"
+    ),
+    Var(
+        "recent_gap",
+        S,
+        "f8",
+        "1",
+        "smallest osculating gap q_out - Q_in of the pair, in mutual Hill radii, at the last stopping checks",
+    ),
     Var("energy_error", S, "f8", "1", "relative energy error, corrected for mergers and removals"),
     Var("angmom_error", S, "f8", "1", "relative angular-momentum error, corrected for mergers and removals"),
     Var("steps", S, "i8", "1", "integrator steps taken"),
@@ -143,14 +167,19 @@ def records_to_dataset(records: list[SystemRecord], n_planets: int) -> xr.Datase
             data["fate"][i, :] = FILL_INT
         data["seed"][i] = r.seed
         data["end_reason"][i] = int(r.end_reason)
+        data["settlement"][i] = FILL_INT if failed else int(r.settlement)
         for name, fates in (
             ("n_survivors", (Fate.SURVIVED,)),
+            ("n_unbound", (Fate.UNBOUND,)),
             ("n_ejected", (Fate.EJECTED,)),
             ("n_merged", (Fate.MERGED,)),
             ("n_star", (Fate.HIT_STAR, Fate.DISRUPTED)),
         ):
             data[name][i] = FILL_INT if failed else sum(r.count(f) for f in fates)
         for name in (
+            "t_limit",
+            "hill_ratio",
+            "recent_gap",
             "t_first_encounter",
             "t_end",
             "energy_error",
@@ -177,6 +206,7 @@ def records_to_dataset(records: list[SystemRecord], n_planets: int) -> xr.Datase
         },
     )
     ds.attrs["Conventions"] = "CF-1.10"
+    ds.attrs["settlement_rule"] = SETTLEMENT_RULE
     return ds
 
 
@@ -207,6 +237,23 @@ def quality_mask(
     return ok
 
 
-def survivor_mask(ds: xr.Dataset, **quality) -> xr.DataArray:
-    """Surviving planets of the systems selected by :func:`quality_mask` (system x planet)."""
-    return (ds["fate"] == int(Fate.SURVIVED)) & quality_mask(ds, **quality)
+def survivor_mask(ds: xr.Dataset, settlement=None, **quality) -> xr.DataArray:
+    """Surviving planets of the systems selected by :func:`quality_mask` (system x planet).
+
+    The one survivor definition of the package: fate ``survived``, which the engine gives only to
+    planets on a bound astrocentric orbit at the end (a > 0, 0 <= e < 1; a planet still present
+    but unbound has the fate ``unbound_at_end``).  With ``settlement`` (a Settlement or a
+    sequence of them) only systems of those classes count.
+    """
+    a, e = ds["a_final"], ds["e_final"]
+    bound = (a > 0) & (e >= 0) & (e < 1)  # what the engine's fate promises; also for hand-made records
+    keep = (ds["fate"] == int(Fate.SURVIVED)) & bound & quality_mask(ds, **quality)
+    if settlement is not None:
+        keep = keep & settlement_mask(ds, settlement)
+    return keep
+
+
+def settlement_mask(ds: xr.Dataset, classes) -> xr.DataArray:
+    """Systems whose settlement class is one of ``classes`` (a Settlement or a sequence of them)."""
+    classes = [classes] if isinstance(classes, Settlement) else list(classes)
+    return ds["settlement"].isin([int(c) for c in classes])

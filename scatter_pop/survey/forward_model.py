@@ -31,7 +31,7 @@ import numpy as np
 import xarray as xr
 
 from scatter_pop.constants import DAY_S, MJUP_MSUN, YEAR_S
-from scatter_pop.engine.outcome import EndReason
+from scatter_pop.engine.outcome import EndReason, Settlement
 from scatter_pop.errors import InputError
 from scatter_pop.store.schema import ENERGY_TOLERANCE_DEFAULT, quality_mask, survivor_mask
 from scatter_pop.survey.cuts import CutLog, Range, SampleCuts
@@ -156,8 +156,10 @@ def survivor_table(
     include_capped: bool = False,
     rescale_a: Range | None = None,
     circularise_tidal: bool = False,
+    settlement=None,
 ) -> dict[str, np.ndarray]:
-    """Surviving, bound planets of the systems that pass the quality cuts.
+    """Surviving (bound) planets of the systems that pass the quality cuts
+    (:func:`scatter_pop.store.schema.survivor_mask`, the package's one survivor definition).
 
     Parameters
     ----------
@@ -182,6 +184,8 @@ def survivor_table(
         Replace the orbits of tidal-circularisation candidates (``tidal_candidate``)
         by the circular orbit of equal angular momentum, a = a(1 − e²), e = 0
         (Ford & Rasio 2006: a_final ≈ 2q for e → 1).
+    settlement : Settlement or sequence of them, optional
+        Only systems of these settlement classes (default: all).
 
     Returns
     -------
@@ -190,7 +194,8 @@ def survivor_table(
         ``mass`` [M_sun], ``sin_i``, ``msini`` [M_sun], ``a`` [AU], ``e``,
         ``q`` [AU], ``inc`` [rad, to the initial reference plane], ``period``
         [yr], ``K`` [m/s], ``m_star`` [M_sun], ``scale`` (rescaling factor),
-        ``tidal`` (bool: tidal-circularisation candidate).
+        ``tidal`` (bool: tidal-circularisation candidate), ``settlement`` (the system's
+        :class:`~scatter_pop.engine.outcome.Settlement` code).
     """
     rng = np.random.default_rng(rng)
     los_rng, scale_rng = rng.spawn(2)
@@ -203,9 +208,11 @@ def survivor_table(
         inner = np.min(np.where(a0 > 0, a0, np.inf), axis=1)  # systems without planets: inf
         scale = np.where(np.isfinite(inner), target / inner, np.nan)
     sin_i_all = _sky_sin_i(ds["inc_final"].values, ds["node_final"].values, los_rng)
-    keep = survivor_mask(ds, energy_tolerance=energy_tolerance, include_capped=include_capped).values
+    keep = np.asarray(
+        survivor_mask(ds, settlement, energy_tolerance=energy_tolerance, include_capped=include_capped).values,
+        dtype=bool,
+    )
     a_fin, e_fin = ds["a_final"].values, ds["e_final"].values
-    keep &= (a_fin > 0) & (e_fin >= 0) & (e_fin < 1)
     si, pj = np.nonzero(keep)
     mass = ds["mass_final"].values[si, pj]
     sin_i = sin_i_all[si, pj]
@@ -235,6 +242,7 @@ def survivor_table(
         "m_star": np.full(si.size, m_star),
         "scale": f,
         "tidal": tidal,
+        "settlement": ds["settlement"].values[si].astype(np.int64),
     }
 
 
@@ -359,6 +367,12 @@ def simulated_sample(
         notes += (
             f"{int(table['tidal'].sum())} tidal-circularisation candidates given the circular orbit "
             "of equal angular momentum (a -> a(1 - e^2), e -> 0) before the cuts",
+        )
+    snapshots = int(np.sum(keep & (table["settlement"] == int(Settlement.UNSETTLED))))
+    if snapshots:
+        notes += (
+            f"{snapshots} of the {int(keep.sum())} simulated planets are in unsettled systems (snapshots at the "
+            "end time whose orbits may still change; raise the end time to carry them further)",
         )
     return SimulatedSample(
         label=label, table={k: v[keep] for k, v in table.items()}, log=log, excluded=excluded, notes=notes

@@ -8,7 +8,9 @@ its counts ``n_ejected``, ``n_merged`` and ``n_star`` (see
 ``ejection``  only ejections;
 ``merger``    only planet–planet mergers;
 ``star``      only losses to the star (collision or tidal disruption);
-``several``   more than one of these kinds (e.g. an ejection and a merger).
+``several``   more than one of these kinds (e.g. an ejection and a merger);
+``unsettled`` the outcome is not final (settlement class ``unsettled``: a snapshot at the end
+              time, whatever was lost before) — its own category, never mixed with the others.
 
 :func:`branching_ratios` gives the fraction of systems in each branch with
 its binomial interval (:mod:`scatter_pop.target.proportions`).
@@ -21,12 +23,13 @@ from dataclasses import dataclass
 import numpy as np
 import xarray as xr
 
+from scatter_pop.engine.outcome import Settlement
 from scatter_pop.store.schema import quality_mask
 from scatter_pop.target.proportions import Proportion, proportion
 
 __all__ = ["BRANCHES", "BRANCH_LABELS", "system_branch", "planet_branch", "BranchRatio", "branching_ratios"]
 
-BRANCHES = ("none", "ejection", "merger", "star", "several")
+BRANCHES = ("none", "ejection", "merger", "star", "several", "unsettled")
 
 #: words for axis labels, legends and tables
 BRANCH_LABELS = {
@@ -35,6 +38,7 @@ BRANCH_LABELS = {
     "merger": "merger",
     "star": "lost to star",
     "several": "several kinds of loss",
+    "unsettled": "unsettled (snapshot)",
 }
 
 
@@ -53,6 +57,7 @@ def system_branch(ds: xr.Dataset) -> np.ndarray:
     out[(kinds == 1) & (me > 0)] = "merger"
     out[(kinds == 1) & (st > 0)] = "star"
     out[kinds > 1] = "several"
+    out[np.asarray(ds["settlement"].values) == int(Settlement.UNSETTLED)] = "unsettled"
     out[(ej < 0) | (me < 0) | (st < 0)] = ""
     return out.astype(str)
 

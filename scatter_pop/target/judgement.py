@@ -2,7 +2,11 @@
 
 For each ensemble the systems that enter the statistics are those of
 :func:`scatter_pop.store.schema.quality_mask` (failed, capped and energy-flagged
-systems left out and counted).  A surviving planet is "like the target"
+systems left out and counted).  Their settlement classes
+(:mod:`scatter_pop.engine.settlement`) split them: the headline fractions use only the
+systems whose outcome is final or likely so (``settled`` + ``likely_stable``); matches in
+``unsettled`` systems (snapshots at the end time) are counted apart, by class, and in a
+separate line that counts them too (``with_unsettled``), never in the headline.  A surviving planet is "like the target"
 by the windows of :mod:`scatter_pop.target.planet` (hard cut, with one seeded
 isotropic line of sight per system) and carries a likelihood weight
 (:mod:`scatter_pop.target.matching`).  The result gives
@@ -31,7 +35,7 @@ import numpy as np
 import scipy.stats
 import xarray as xr
 
-from scatter_pop.engine.outcome import EndReason
+from scatter_pop.engine.outcome import Settlement
 from scatter_pop.store.schema import ENERGY_TOLERANCE_DEFAULT, quality_mask
 from scatter_pop.survey.forward_model import ensemble_star_mass, quality_counts, survivor_table
 from scatter_pop.target.architecture import mass_ratio, min_spacing, planet_count
@@ -102,7 +106,7 @@ class SystemFrame:
     mass_ratio: np.ndarray
     spacing: np.ndarray  # mutual Hill radii
     count: np.ndarray
-    unsettled: np.ndarray  # stopped at the end time with >= 2 survivors
+    settlement: np.ndarray  # Settlement code per system
     t_end: np.ndarray  # yr
     s_system: np.ndarray  # per survivor: position of its system in the arrays above
     s_e: np.ndarray
@@ -142,7 +146,6 @@ def system_frame(
     include_capped : bool
         Keep systems stopped by the wall-clock cap.
     """
-    reason = ds["end_reason"].values
     use = np.asarray(
         quality_mask(ds, energy_tolerance=energy_tolerance, include_capped=include_capped).values, dtype=bool
     )
@@ -175,7 +178,7 @@ def system_frame(
         mass_ratio=mass_ratio(ds)[use],
         spacing=min_spacing(ds, m_star)[use],
         count=planet_count(ds)[use],
-        unsettled=((reason[use] == int(EndReason.END_TIME)) & (n_surv >= 2)),
+        settlement=ds["settlement"].values[use].astype(int),
         t_end=ds["t_end"].values[use].astype(float),
         s_system=pos[row],
         s_e=table["e"],
@@ -202,7 +205,7 @@ def pool_frames(frames: list[SystemFrame], label: str = "all ensembles") -> Syst
         "mass_ratio",
         "spacing",
         "count",
-        "unsettled",
+        "settlement",
         "t_end",
     )
     per_survivor = ("s_e", "s_a", "s_mass", "s_msini", "s_tidal")
@@ -231,15 +234,22 @@ class EnsembleJudgement:
     excluded : dict
         Systems left out: ``failed``, ``capped``, ``energy``.
     systems, survivors : Proportion
-        Hard-cut fractions with binomial intervals.
+        Hard-cut fractions with binomial intervals among the systems whose outcome is final or
+        likely so (settled + likely stable) — the headline.
+    by_class : dict
+        Settlement word -> Proportion of matching systems among the systems of that class.
+    with_unsettled : Proportion
+        Matching systems of every class among all systems used: the unsettled matches counted
+        as if they were outcomes (an upper-bound line, never the headline).
+    settled_matches : int
+        Matching systems among the settled ones (the only ones that show an outcome is possible).
     weighted_systems, weighted_survivors : WeightedFraction
     pathways : Pathways
     configurations : tuple of ConfigComparison
     a_survivors : (float, float)
         Range of the survivors' final a [AU] (NaN if none).
     n_unsettled : int
-        Used systems that reached the end time with >= 2 survivors (may
-        still evolve).
+        Used systems whose outcome is not final (settlement ``unsettled``).
     t_end_max : float
         Longest integration [yr].
     mass_scale : float
@@ -257,6 +267,9 @@ class EnsembleJudgement:
     survivors: Proportion
     weighted_systems: WeightedFraction
     weighted_survivors: WeightedFraction
+    by_class: dict
+    with_unsettled: Proportion
+    settled_matches: int
     pathways: Pathways
     configurations: tuple[ConfigComparison, ...]
     a_survivors: tuple[float, float]
@@ -338,35 +351,46 @@ def judge_frame(
     weight = soft_weight(frame.s_e, frame.s_a, frame.s_mass, target, windows)
     sys_match = np.zeros(n_sys, dtype=bool)
     sys_match[frame.s_system[match]] = True
+    final = np.isin(frame.settlement, [int(Settlement.SETTLED), int(Settlement.LIKELY_STABLE)])
+    s_final = final[frame.s_system]  # per survivor: its system's outcome is final or likely so
     # P(at least one planet of the system matches) = 1 - prod(1 - w)
     miss = np.ones(n_sys)
     np.multiply.at(miss, frame.s_system, 1.0 - weight)
-    w_sys = 1.0 - miss
+    w_sys = (1.0 - miss)[final]
     w_sum = np.zeros(n_sys)
     np.add.at(w_sum, frame.s_system, weight)
     rng = np.random.default_rng(seed)
     finite_a = frame.s_a[np.isfinite(frame.s_a)]
+    n_final = int(final.sum())
+    prop = lambda k, n: proportion(int(k), int(n), confidence=confidence, method=method)  # noqa: E731
+    by_class = {
+        c.word: prop(np.sum(sys_match & (frame.settlement == int(c))), np.sum(frame.settlement == int(c)))
+        for c in Settlement
+    }
     return EnsembleJudgement(
         label=frame.label,
         n_total=frame.n_total,
         n_systems=n_sys,
         n_survivors=int(frame.s_e.size),
         excluded=dict(frame.excluded),
-        systems=proportion(int(sys_match.sum()), n_sys, confidence=confidence, method=method),
-        survivors=proportion(int(match.sum()), int(frame.s_e.size), confidence=confidence, method=method),
-        weighted_systems=_bootstrap((w_sys,), _mean, n=n_sys, confidence=confidence, resamples=resamples, rng=rng),
+        systems=prop(np.sum(sys_match & final), n_final),
+        survivors=prop(np.sum(match & s_final), np.sum(s_final)),
+        weighted_systems=_bootstrap((w_sys,), _mean, n=n_final, confidence=confidence, resamples=resamples, rng=rng),
         weighted_survivors=_bootstrap(
-            (w_sum, frame.n_survivors.astype(float)),
+            (w_sum[final], frame.n_survivors[final].astype(float)),
             _ratio,
-            n=n_sys,
+            n=n_final,
             confidence=confidence,
             resamples=resamples,
             rng=rng,
         ),
-        pathways=pathways(frame, sys_match, match),
-        configurations=compare_configurations(frame, sys_match),
+        by_class=by_class,
+        with_unsettled=prop(sys_match.sum(), n_sys),
+        settled_matches=int(np.sum(sys_match & (frame.settlement == int(Settlement.SETTLED)))),
+        pathways=pathways(frame, sys_match & final, match & s_final, unsettled_matching=sys_match & ~final),
+        configurations=compare_configurations(frame, sys_match & final, among=final),
         a_survivors=((float(finite_a.min()), float(finite_a.max())) if finite_a.size else (float("nan"), float("nan"))),
-        n_unsettled=int(frame.unsettled.sum()),
+        n_unsettled=int(np.sum(frame.settlement == int(Settlement.UNSETTLED))),
         t_end_max=float(np.nanmax(frame.t_end)) if n_sys else float("nan"),
         mass_scale=frame.mass_scale,
         star_mass=frame.star_mass,

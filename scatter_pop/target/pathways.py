@@ -31,7 +31,12 @@ import scipy.stats
 from scatter_pop.survey.statistics import Spread
 from scatter_pop.target.branches import BRANCHES
 
-__all__ = ["Pathways", "ConfigComparison", "pathways", "compare_configurations", "CONFIG_QUANTITIES"]
+__all__ = ["Pathways", "ConfigComparison", "pathways", "compare_configurations", "CONFIG_QUANTITIES", "MIN_SAMPLE"]
+
+#: fewer values than this in a sample: no percentiles, KS p or Cliff's delta ("too few to compare").
+#: Common practice: with 4 values the 16th and 84th percentiles are interpolations between two
+#: points, and the smallest two-sided KS p-value of a 1-vs-n comparison cannot fall below 2/(n+1).
+MIN_SAMPLE = 5
 
 #: frame attribute -> (description, unit)
 CONFIG_QUANTITIES = {
@@ -64,8 +69,8 @@ class Pathways:
     pericentre : Spread
         q = a(1 − e) of the matching planets [AU].
     unsettled_matching : int
-        Matching systems stopped at the end time with >= 2 planets left
-        (their orbits may still change).
+        Systems with a planet like the target at the end time whose outcome is not final
+        (settlement ``unsettled``: not counted as matching above).
     """
 
     n_matching: int
@@ -90,7 +95,7 @@ def _lost(frame, sel) -> dict:
     }
 
 
-def pathways(frame, sys_match, planet_match) -> Pathways:
+def pathways(frame, sys_match, planet_match, unsettled_matching=None) -> Pathways:
     """Pathways of the matching systems.
 
     Parameters
@@ -100,6 +105,8 @@ def pathways(frame, sys_match, planet_match) -> Pathways:
         Per system: made at least one matching planet.
     planet_match : numpy.ndarray of bool
         Per survivor of the frame: is a matching planet.
+    unsettled_matching : numpy.ndarray of bool, optional
+        Per system: has a planet like the target but its outcome is not final.
     """
     sys_match = np.asarray(sys_match, dtype=bool)
     planet_match = np.asarray(planet_match, dtype=bool)
@@ -122,7 +129,7 @@ def pathways(frame, sys_match, planet_match) -> Pathways:
         instability_all=Spread.of(frame.t_encounter),
         tidal_candidates=int(frame.s_tidal[planet_match].sum()),
         pericentre=Spread.of(q),
-        unsettled_matching=int(np.sum(frame.unsettled[sys_match])),
+        unsettled_matching=0 if unsettled_matching is None else int(np.sum(unsettled_matching)),
     )
 
 
@@ -141,9 +148,10 @@ class ConfigComparison:
     n_matching, n_rest : int
         Sample sizes of the test (finite values only).
     cliffs_delta : float
-        P(X_match > X_rest) − P(X_match < X_rest), in [−1, 1]; NaN if a sample is empty.
+        P(X_match > X_rest) − P(X_match < X_rest), in [−1, 1]; NaN if a sample has fewer than
+        :data:`MIN_SAMPLE` values.
     ks_pvalue : float
-        Two-sample KS p-value, matching vs rest; NaN if a sample is empty.
+        Two-sample KS p-value, matching vs rest; NaN likewise.
     """
 
     key: str
@@ -156,13 +164,18 @@ class ConfigComparison:
     cliffs_delta: float
     ks_pvalue: float
 
+    @property
+    def too_few(self) -> bool:
+        """Fewer than :data:`MIN_SAMPLE` values on one side: nothing to compare."""
+        return min(self.n_matching, self.n_rest) < MIN_SAMPLE
+
 
 def _median(v) -> float:
     v = v[np.isfinite(v)]
     return float(np.median(v)) if v.size else math.nan
 
 
-def compare_configurations(frame, sys_match) -> tuple[ConfigComparison, ...]:
+def compare_configurations(frame, sys_match, among=None) -> tuple[ConfigComparison, ...]:
     """Starting configurations of matching systems vs the rest (see the module docstring).
 
     Parameters
@@ -170,17 +183,22 @@ def compare_configurations(frame, sys_match) -> tuple[ConfigComparison, ...]:
     frame : scatter_pop.target.judgement.SystemFrame
     sys_match : numpy.ndarray of bool
         Per system: made at least one matching planet.
+    among : numpy.ndarray of bool, optional
+        Systems the "rest" is drawn from (default all); the medians over all use these too.
     """
     sys_match = np.asarray(sys_match, dtype=bool)
+    among = np.ones_like(sys_match) if among is None else np.asarray(among, dtype=bool)
     out = []
     for key, (quantity, unit) in CONFIG_QUANTITIES.items():
         v = np.asarray(getattr(frame, key), dtype=float)
         x = v[sys_match & np.isfinite(v)]
-        y = v[~sys_match & np.isfinite(v)]
+        y = v[~sys_match & among & np.isfinite(v)]
         delta = ks_p = math.nan
-        if x.size and y.size:
+        if min(x.size, y.size) >= MIN_SAMPLE:
             u = scipy.stats.mannwhitneyu(x, y, alternative="two-sided").statistic
             delta = float(2.0 * u / (x.size * y.size) - 1.0)
             ks_p = float(scipy.stats.ks_2samp(x, y, method="auto").pvalue)
-        out.append(ConfigComparison(key, quantity, unit, _median(x), _median(v), int(x.size), int(y.size), delta, ks_p))
+        out.append(
+            ConfigComparison(key, quantity, unit, _median(x), _median(v[among]), int(x.size), int(y.size), delta, ks_p)
+        )
     return tuple(out)

@@ -7,7 +7,12 @@ package units (AU, yr, M_sun) and says so in its ``units`` entry.
 The words for a rate are this program's convention, not a published scale:
 at least 10 % of systems — "a common outcome"; 1–10 % — "an uncommon but
 regular outcome"; below 1 % — "a rare outcome"; no match — the exact upper
-limit.
+limit.  A rate word is used only when the whole interval lies in its band;
+otherwise the verdict says which rates the interval excludes and which it does not.
+The headline counts only systems whose outcome is final or likely so (settled +
+likely stable); "can produce" is said only when a settled system made such a planet.
+Numbers are shown to the precision their interval supports (two significant figures
+of the interval's width), never finer than 0.001 %.
 """
 
 from __future__ import annotations
@@ -18,18 +23,49 @@ import math
 
 from scatter_pop.constants import MJUP_MSUN
 from scatter_pop.target.judgement import EnsembleJudgement, Judgement
+from scatter_pop.target.pathways import MIN_SAMPLE
 
-__all__ = ["rate_words", "verdict_sentence", "caveats", "render_text", "to_dict", "render_json"]
+__all__ = [
+    "rate_words",
+    "interval_words",
+    "verdict_sentences",
+    "verdict_sentence",
+    "caveats",
+    "render_text",
+    "to_dict",
+    "render_json",
+]
 
 
-def _pct(x: float) -> str:
+FLOOR = 1e-5  # fractions below this are shown as "< 0.001 %"
+RATE_BANDS = ((0.10, "a common outcome"), (0.01, "an uncommon but regular outcome"), (0.0, "a rare outcome"))
+_BAND_NAMES = {
+    "a common outcome": "common range (10 % and more)",
+    "an uncommon but regular outcome": "uncommon-but-regular range (1 % to 10 %)",
+    "a rare outcome": "rare range (below 1 %)",
+}
+
+
+def _pct(x: float, width: float | None = None) -> str:
+    """A fraction in per cent: two significant figures of ``width`` (an interval's width) when
+    given, else of ``x`` itself; below :data:`FLOOR` "< 0.001 %"."""
     if x is None or not math.isfinite(x):
         return "n/a"
     if x == 0:
         return "0 %"
-    if x < 0.001:
-        return f"{100 * x:.2g} %"
-    return f"{100 * x:.2f} %" if x < 0.1 else f"{100 * x:.1f} %"
+    if x < FLOOR:
+        return "< 0.001 %"
+    scale = width if width is not None and math.isfinite(width) and width > 0 else x
+    decimals = max(0, 1 - math.floor(math.log10(100 * scale)))
+    text = f"{100 * x:.{decimals}f}"
+    if float(text) == 0:  # the width asks for fewer digits than the value needs to be seen
+        text = f"{100 * x:.2g}"
+    return f"{text} %"
+
+
+def _count(x: float) -> str:
+    """An expected number of matches: two significant figures, "< 0.001" below that."""
+    return "0" if x == 0 else ("< 0.001" if x < 1e-3 else f"{x:.2g}")
 
 
 def _num(x: float, unit: str = "") -> str:
@@ -41,11 +77,24 @@ def _num(x: float, unit: str = "") -> str:
 
 def rate_words(fraction: float) -> str:
     """The program's words for a rate (see the module docstring)."""
-    if fraction >= 0.10:
-        return "a common outcome"
-    if fraction >= 0.01:
-        return "an uncommon but regular outcome"
-    return "a rare outcome"
+    for low, words in RATE_BANDS:
+        if fraction >= low:
+            return words
+    return RATE_BANDS[-1][1]
+
+
+def interval_words(low: float, high: float) -> str | None:
+    """The rate words that the whole interval [low, high] supports, or None when its ends fall in
+    different bands."""
+    a, b = rate_words(low), rate_words(high)
+    return a if a == b else None
+
+
+def _interval(p) -> str:
+    width = p.high - p.low
+    return (
+        f"{_pct(p.fraction, width)} ({100 * p.confidence:g} % {p.method_name} interval {_pct(p.low)} to {_pct(p.high)})"
+    )
 
 
 def describe_target(j: Judgement) -> list[str]:
@@ -68,27 +117,72 @@ def describe_target(j: Judgement) -> list[str]:
     ]
 
 
-def verdict_sentence(r: EnsembleJudgement, j: Judgement) -> str:
-    """One plain-language sentence with the number that matters."""
+def verdict_sentences(r: EnsembleJudgement, j: Judgement) -> list[str]:
+    """The verdict as plain sentences, each no stronger than its interval (module docstring)."""
     name, p = j.target.name, r.systems
     conf = f"{100 * p.confidence:g} %"
+    n_u, k_u = r.by_class["unsettled"].n, r.by_class["unsettled"].k
+    snapshots = (
+        f"{k_u} of the {n_u} unsettled systems {'shows' if k_u == 1 else 'show'} such a planet at the end "
+        f"time, but {'it is a snapshot' if k_u == 1 else 'they are snapshots'} that may still change and "
+        f"{'is' if k_u == 1 else 'are'} not counted."
+        if k_u
+        else None
+    )
+    if r.n_systems == 0:
+        return [f"No system of this ensemble entered the statistics: nothing can be said about {name}."]
     if p.n == 0:
-        return f"No system of this ensemble entered the statistics: nothing can be said about {name}."
+        out = [
+            f"None of the {r.n_systems} systems used reached a final or likely-stable outcome: all are "
+            f"snapshots at the end time, so nothing can be said yet about how often scattering makes "
+            f"a planet like {name}; raise the end time to carry them further."
+        ]
+        return out + ([snapshots] if snapshots else [])
     if p.k == 0:
         r3 = f"; rule of three: 3/N = {_pct(p.rule_of_three)}" if p.rule_of_three is not None else ""
-        return (
-            f"No system of {p.n} made a planet like {name}. At {conf} confidence scattering in this "
-            f"ensemble makes one in fewer than {_pct(p.upper_limit)} of systems (exact one-sided "
-            f"binomial upper limit, 1 - {1 - p.confidence:g}^(1/N){r3}). That is a limit, not a "
-            f"verdict against scattering: other initial conditions or a larger ensemble may do better."
+        out = [
+            f"None of the {p.n} settled or likely-stable systems made a planet like {name}.",
+            f"At {conf} confidence such systems make one in fewer than {_pct(p.upper_limit)} of cases "
+            f"(exact one-sided binomial upper limit, 1 - {1 - p.confidence:g}^(1/N){r3}); rates below "
+            f"that are not excluded.",
+            "That is a limit, not a verdict against scattering: other initial conditions or a larger "
+            "ensemble may do better.",
+        ]
+        return out + ([snapshots] if snapshots else [])
+    out = [
+        f"Scattering in this ensemble left a planet like {name} in {p.k} of {p.n} settled or "
+        f"likely-stable systems: {_interval(p)}."
+    ]
+    words = interval_words(p.low, p.high)
+    if words is not None:
+        out.append(f"The whole interval lies in one band: such a planet is {words} of these initial conditions.")
+    else:
+        out.append(
+            f"The interval reaches from the {_BAND_NAMES[rate_words(p.low)]} into the "
+            f"{_BAND_NAMES[rate_words(p.high)]}, so no single rate word fits: the data exclude rates below "
+            f"{_pct(p.low)} and above {_pct(p.high)}, and nothing more."
         )
-    one_in = 1.0 / p.fraction
-    return (
-        f"Scattering in this ensemble makes a planet like {name} in {p.k} of {p.n} systems, "
-        f"{_pct(p.fraction)} ({conf} {p.method_name} interval {_pct(p.low)} to {_pct(p.high)}), about "
-        f"1 system in {one_in:.0f}: {rate_words(p.fraction)}. So scattering can produce such a "
-        f"planet from these initial conditions."
-    )
+    if r.settled_matches:
+        which = (
+            "the matching system is settled"
+            if p.k == 1
+            else f"{r.settled_matches} of the {p.k} matching systems are settled"
+        )
+        out.append(
+            f"So scattering can produce such a planet from these initial conditions: {which}, an outcome "
+            f"that cannot change."
+        )
+    else:
+        out.append(
+            "All matching systems are likely-stable pairs (Petrovich 2015 criterion), none settled: "
+            "scattering may produce such a planet, but no outcome shown here is certain to last."
+        )
+    return out + ([snapshots] if snapshots else [])
+
+
+def verdict_sentence(r: EnsembleJudgement, j: Judgement) -> str:
+    """The verdict sentences of :func:`verdict_sentences` as one paragraph."""
+    return " ".join(verdict_sentences(r, j))
 
 
 def caveats(r: EnsembleJudgement, j: Judgement) -> list[str]:
@@ -142,11 +236,15 @@ def caveats(r: EnsembleJudgement, j: Judgement) -> list[str]:
         )
     if r.n_unsettled:
         text = (
-            f"Unfinished: {r.n_unsettled} systems reached the end time ({_num(r.t_end_max, 'yr')}) "
-            f"with two or more planets not certified Hill-stable; their orbits may still change"
+            f"Unfinished: {r.n_unsettled} of the {r.n_systems} systems used are unsettled — stopped at the end "
+            f"time ({_num(r.t_end_max, 'yr')}) with orbits that may still change; they are left out of the "
+            f"headline. A pair that started Hill unstable can never become Hill stable (its energy and angular "
+            f"momentum are conserved): it settles only by losing a planet, so raise the end time to carry them "
+            f"further"
         )
-        if r.pathways.n_matching:
-            text += f" ({r.pathways.unsettled_matching} of the {r.pathways.n_matching} matching systems among them)"
+        if r.pathways.unsettled_matching:
+            k = r.pathways.unsettled_matching
+            text += f" ({k} of them {'shows' if k == 1 else 'show'} a planet like {t.name} at the end time)"
         out.append(text + ".")
     if r.pathways.tidal_candidates:
         out.append(
@@ -162,6 +260,15 @@ def caveats(r: EnsembleJudgement, j: Judgement) -> list[str]:
     return out
 
 
+def _spread(sp, unit: str) -> str:
+    """Median and 16-84 % range, or the values themselves when there are too few for percentiles."""
+    if sp.n == 0:
+        return "none"
+    if sp.n < MIN_SAMPLE:
+        return f"median {_num(sp.median, unit)} (too few for percentiles, n = {sp.n})"
+    return f"median {_num(sp.median, unit)} (16-84 %: {_num(sp.p16)} to {_num(sp.p84, unit)}, n = {sp.n})"
+
+
 def _ensemble_lines(r: EnsembleJudgement, j: Judgement) -> list[str]:
     p, s, ws, wv = r.systems, r.survivors, r.weighted_systems, r.weighted_survivors
     pw, conf = r.pathways, f"{100 * j.confidence:g} %"
@@ -171,19 +278,31 @@ def _ensemble_lines(r: EnsembleJudgement, j: Judgement) -> list[str]:
         f"systems: {r.n_total} in the file, {r.n_systems} used, {sum(ex.values())} left out "
         f"({ex['failed']} failed, {ex['capped']} capped, {ex['energy']} energy error); "
         f"{r.n_survivors} surviving planets",
-        "like the target:",
+        "like the target (headline: systems whose outcome is settled or likely stable):",
     ]
     for word, q in (("systems", p), ("survivors", s)):
         extra = f"; {conf} one-sided upper limit {_pct(q.upper_limit)}" if q.k == 0 and q.n else ""
         lines.append(
-            f"  {word:<10}{q.k:>6} / {q.n:<6} = {_pct(q.fraction):>8}   {conf} {q.method_name} "
+            f"  {word:<10}{q.k:>6} / {q.n:<6} = {_pct(q.fraction, q.high - q.low):>8}   {conf} {q.method_name} "
             f"interval {_pct(q.low)} to {_pct(q.high)}{extra}"
         )
-    lines.append("likelihood-weighted (measurement uncertainties instead of windows):")
+    lines.append("by settlement class (systems like the target / systems of the class):")
+    for word, q in r.by_class.items():
+        if q.n:
+            lines.append(f"  {word:<14}{q.k:>6} / {q.n:<6} {_interval(q)}")
+        else:
+            lines.append(f"  {word:<14}     0 / 0")
+    u = r.with_unsettled
+    lines.append(
+        f"upper-bound line, snapshots counted as if final: {u.k} / {u.n} systems, {_interval(u)}"
+        + (" — not an outcome rate" if r.by_class["unsettled"].k else "")
+    )
+    lines.append("likelihood-weighted over settled + likely-stable systems (uncertainties instead of windows):")
     for word, q in (("systems", ws), ("survivors", wv)):
+        width = q.high - q.low if q.resamples else None
         lines.append(
-            f"  {word:<10}{_pct(q.value):>17}   bootstrap {conf}: {_pct(q.low)} to "
-            f"{_pct(q.high)}; expected matches {q.expected:.3g}"
+            f"  {word:<10}{_pct(q.value, width):>17}   bootstrap {conf}: {_pct(q.low)} to "
+            f"{_pct(q.high)}; expected matches {_count(q.expected)}"
         )
     lines.append("verdict: " + verdict_sentence(r, j))
     if pw.n_matching == 0:
@@ -199,20 +318,23 @@ def _ensemble_lines(r: EnsembleJudgement, j: Judgement) -> list[str]:
     lines.append("  branch: " + ", ".join(f"{b} {k} [{n}]" for b, k, n in pw.branches))
     lines.append("  survivors left: " + ", ".join(f"{n_left}: {k} [{n}]" for n_left, k, n in pw.survivors_left))
     im, ia = pw.instability_matching, pw.instability_all
-    lines.append(
-        f"  instability began (first close encounter): median {_num(im.median, 'yr')} (16-84 %: "
-        f"{_num(im.p16)} to {_num(im.p84, 'yr')}) [median {_num(ia.median, 'yr')}]"
-    )
+    lines.append(f"  instability began (first close encounter): {_spread(im, 'yr')} [all: {_spread(ia, 'yr')}]")
     lines.append(
         f"  tidal-circularisation candidates: {pw.tidal_candidates} of {pw.n_planets} matching "
-        f"planets; their pericentres: median {_num(pw.pericentre.median, 'AU')}"
+        f"planets; their pericentres: {_spread(pw.pericentre, 'AU')}"
     )
     lines.append("starting configurations, matching systems vs the others:")
     for c in r.configurations:
         unit = f" {c.unit}" if c.unit else ""
+        if c.too_few:
+            lines.append(
+                f"  {c.quantity}: too few to compare (n = {c.n_matching} vs {c.n_rest}; "
+                f"at least {MIN_SAMPLE} each are needed)"
+            )
+            continue
         lines.append(
             f"  {c.quantity}: median {_num(c.median_matching)}{unit} vs {_num(c.median_all)}{unit}"
-            f" over all; Cliff's delta {_num(c.cliffs_delta)}, KS p = {_num(c.ks_pvalue)} "
+            f" over all; Cliff's delta {c.cliffs_delta:.2f}, KS p = {c.ks_pvalue:.2g} "
             f"(n = {c.n_matching} vs {c.n_rest})"
         )
     lines.append("caveats:")
@@ -267,6 +389,7 @@ def to_dict(j: Judgement) -> dict:
     docs = list(doc["ensembles"]) + ([doc["pooled"]] if j.pooled is not None else [])
     for r, d in zip(blocks, docs):
         d["verdict"] = verdict_sentence(r, j)
+        d["verdict_sentences"] = verdict_sentences(r, j)
         d["caveats"] = caveats(r, j)
     return _clean(doc)
 

@@ -2,13 +2,17 @@
 comparison with the shipped observed catalogue, the verdict and the figures; a rerun changes
 nothing.  Also the shipped demo files parse and label their scenario as invented."""
 
+import csv
 import json
 from pathlib import Path
 
+import numpy as np
 import pytest
 
 from scatter_pop.cli import demo
 from scatter_pop.spec.reader import load_spec
+from scatter_pop.store.run_folder import open_ensemble
+from scatter_pop.store.schema import quality_mask
 
 TINY = """
 # tiny demo-like ensemble for the test (invented scenario)
@@ -66,7 +70,20 @@ def test_demo_pipeline_on_a_tiny_spec(tmp_path, capsys):
     assert r"\toprule" in (out / "figures" / "outcomes_table.tex").read_text()
     verdict = json.loads((out / "verdict.json").read_text())
     assert verdict["ensembles"][0]["n_total"] == 4
+    # the headline counts only settled and likely-stable systems; the figures show the unsettled apart
+    ds = open_ensemble(out)
+    used = quality_mask(ds).values
+    classes = ds["settlement"].values[used]
+    block = verdict["ensembles"][0]
+    assert block["systems"]["n"] == int(np.isin(classes, [0, 1]).sum())
+    assert block["by_class"]["unsettled"]["n"] == int((classes == 2).sum())
+    assert block["with_unsettled"]["n"] == int(used.sum())
+    assert "headline: systems whose outcome is settled or likely stable" in (out / "verdict.txt").read_text()
+    branching = {r["branch"]: r for r in csv.DictReader(open(out / "figures" / "branching_ratios.csv"))}
+    assert int(branching["unsettled"]["k"]) == int((classes == 2).sum())
+    assert {r["branch"] for r in csv.DictReader(open(out / "figures" / "e_histogram_by_branch.csv"))} >= {"unsettled"}
     assert "invented" in printed and "verdict:" in printed and str(out / "figures") in printed
+    assert "settlement: " in printed and "left out of the headline" in printed
     comparison = json.loads((out / "comparison.json").read_text())
     assert comparison["observed"]["summary"]["n"] == 602  # REFERENCES.md: 602 with e > 0
 

@@ -139,7 +139,14 @@ def test_branching_fractions_count_planet_fates():
         (_record(1, [0.1, 0.2, 0.3], [3, 6, 9], 1e-12, [Fate.SURVIVED, Fate.SURVIVED, Fate.HIT_STAR]), 1.0, 1.0),
     ]
     f = summarize(spec, {"reference": recs}, permutations=10)["reference"]["fates"]
-    assert f == {"survived": 0.5, "ejected": 1 / 6, "merged": 1 / 6, "hit_star": 1 / 6, "tidally_disrupted": 0.0}
+    assert f == {
+        "survived": 0.5,
+        "ejected": 1 / 6,
+        "merged": 1 / 6,
+        "hit_star": 1 / 6,
+        "tidally_disrupted": 0.0,
+        "unbound_at_end": 0.0,
+    }
 
 
 # --------------------------------------------------------------------------- smoke run
@@ -161,7 +168,7 @@ def test_quick_benchmark_runs_every_path(tmp_path, capsys):
     # the reference never stops early and keeps IAS15's accuracy: close to machine precision over
     # short integrations (Rein & Spiegel 2015, MNRAS 446, 1424); 1e-10 is a loose bound
     ref = doc["systems"]["reference"]
-    assert all(r["end_reason"] == "end_time" and r["t_end"] >= doc["settings"]["end_time"] for r in ref)
+    assert all(r["end_reason"] == "stopped_at_end_time" and r["t_end"] >= doc["settings"]["end_time"] for r in ref)
     assert doc["summary"]["reference"]["energy_error_max"] < 1e-10
     assert doc["summary"]["reference"]["speedup"] == 1.0
     assert 0 < doc["summary"]["reference"]["worker_peak_rss_mb"] < 4096

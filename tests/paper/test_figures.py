@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 import scipy.stats
 from PIL import Image
-from records import planet, system, write_run
+from records import dataset, planet, system, write_run
 
 from scatter_pop import cli
 from scatter_pop.engine.outcome import EndReason, Fate
@@ -301,6 +301,114 @@ def test_figure_set_of_a_run_without_usable_systems(tmp_path):
     with warnings.catch_warnings():
         warnings.simplefilter("error")
         assert cli.main(["figures", str(run), "--format", "png", "--out", str(tmp_path / "f")]) == 0
-    assert all((tmp_path / "f" / f"{n}.png").is_file() for n in FIGURES)
+    # e against mass ratio is not drawn: no survivor, so no mass ratio that varies
+    assert all((tmp_path / "f" / f"{n}.png").is_file() for n in FIGURES if n != "e_vs_mass_ratio")
+    assert not (tmp_path / "f" / "e_vs_mass_ratio.png").exists()
     assert sum(int(r["count"]) for r in _read(tmp_path / "f" / "e_histogram_by_branch.csv")) == 0
     assert all(int(r["n"]) == 0 for r in _read(tmp_path / "f" / "branching_ratios.csv"))
+
+
+# --------------------------------------------------------------------------- settled and unsettled
+def _mixed_run():
+    """20 settled one-planet systems and 10 unsettled pairs stopped at the end time (t_limit 5e4 yr);
+    mass ratios 0.5 (settled) and 1.0 (unsettled)."""
+    recs = []
+    for i in range(20):
+        ps = [planet(1.0, 3.0 + 0.1 * i, 0.1 + 0.02 * i, a_initial=3.0), planet(2.0, -30.0, 1.2, fate=Fate.EJECTED)]
+        recs.append(system(i, ps, t_enc=100.0 + i, t_end=1e3 + i))
+    for i in range(20, 30):
+        ps = [planet(1.0, 2.5, 0.7, a_initial=3.0), planet(1.0, 4.0, 0.5, a_initial=4.0)]
+        recs.append(system(i, ps, reason=EndReason.END_TIME, t_enc=300.0, t_end=5e4, hill_ratio=0.99))
+    return recs
+
+
+@pytest.fixture(scope="module")
+def mixed_dir(tmp_path_factory):
+    base = tmp_path_factory.mktemp("mixed")
+    run = write_run(base / "mixed", _mixed_run(), 2)
+    out = base / "out"
+    assert cli.main(["figures", str(run), "--format", "png", "--out", str(out)]) == 0
+    return out
+
+
+def test_unsettled_systems_are_their_own_category(mixed_dir):
+    hist = _read(mixed_dir / "e_histogram_by_branch.csv")
+    by_branch = {}
+    for r in hist:
+        by_branch[r["branch"]] = by_branch.get(r["branch"], 0) + int(r["count"])
+    # 10 unsettled pairs: 20 planets, all in the unsettled category; the 20 settled ones by their loss
+    assert by_branch["unsettled"] == 20 and by_branch["ejection"] == 20 and by_branch["none"] == 0
+    branching = {r["branch"]: r for r in _read(mixed_dir / "branching_ratios.csv")}
+    assert (int(branching["unsettled"]["k"]), int(branching["unsettled"]["n"])) == (10, 30)
+    assert int(branching["none"]["k"]) == 0  # "no planet lost" no longer holds the snapshots
+    ci = scipy.stats.binomtest(10, 30).proportion_ci(confidence_level=0.95, method="exact")
+    assert float(branching["unsettled"]["low"]) == pytest.approx(ci.low, rel=1e-12)
+    points = _read(mixed_dir / "a_e_plane.csv")
+    assert sum(r["branch"] == "unsettled" for r in points) == 20
+
+
+def test_unsettled_category_is_drawn_with_its_own_colour_and_legend(tmp_path):
+    import matplotlib.colors as mcolors
+
+    from scatter_pop.paper import drawing, figure_data
+    from scatter_pop.target.branches import BRANCH_LABELS
+
+    ds = dataset(_mixed_run(), 2)
+    with drawing.style():
+        fig, axes = drawing.new_figure(3.35, 2.4)
+        drawing.draw_e_histogram(axes[0, 0], figure_data.e_histogram_by_branch([("m", ds)]))
+        labels = [t.get_text() for t in axes[0, 0].get_legend().get_texts()]
+        assert BRANCH_LABELS["unsettled"] in labels
+        grey = [
+            p for p in axes[0, 0].patches if mcolors.same_color(p.get_facecolor(), drawing.BRANCH_STYLE["unsettled"][0])
+        ]
+        assert grey and all(
+            not mcolors.same_color(drawing.BRANCH_STYLE["unsettled"][0], drawing.BRANCH_STYLE[b][0])
+            for b in drawing.BRANCH_STYLE
+            if b != "unsettled"
+        )
+        fig, axes = drawing.new_figure(3.35, 2.4)
+        drawing.draw_branching(axes[0, 0], figure_data.branching_table([("m", ds)]))
+        labels = [t.get_text() for t in axes[0, 0].get_legend().get_texts()]
+        assert any(label.startswith("unsettled") for label in labels)
+        assert any(p.get_hatch() for p in axes[0, 0].patches)
+
+
+def test_end_time_is_marked_on_the_instability_plot(mixed_dir):
+    rows = _read(mixed_dir / "instability_times.csv")
+    # the settled systems stopped early (t_limit = t_end in the hand-made records), the pairs at 5e4 yr
+    assert _col(rows, "t_limit_max_yr")[0] == 5e4 and _col(rows, "t_limit_min_yr")[0] == 1e3
+
+
+def test_a_e_plane_spans_the_survivors_and_labels_its_lines(mixed_dir, tmp_path):
+    from scatter_pop.paper import drawing, figure_data
+
+    lines = _read(mixed_dir / "a_e_plane_lines.csv")
+    a = _col(lines, "a_au")
+    survivors = _col(_read(mixed_dir / "a_e_plane.csv"), "a_au")
+    assert a.min() == pytest.approx(survivors.min() / 1.25) and a.max() == pytest.approx(survivors.max() * 1.25)
+    ds = dataset(_mixed_run(), 2)
+    points = figure_data.a_e_points([("m", ds)])
+    table = figure_data.pericentre_lines(*figure_data.survivors_a_range(points))
+    with drawing.style():
+        fig, axes = drawing.new_figure(3.35, 2.4)
+        drawing.draw_a_e(axes[0, 0], points, table)
+        labels = {t.get_text() for t in axes[0, 0].texts}
+        assert {f"q={q:g} AU" for q in set(table["q_au"].tolist())} <= labels
+        assert axes[0, 0].get_xlim() == pytest.approx((a.min(), a.max()))
+
+
+def test_e_vs_mass_ratio_medians_sit_on_the_data_and_a_constant_ratio_draws_nothing(tmp_path):
+    from scatter_pop.paper import figure_data
+
+    ds = dataset(_mixed_run(), 2)
+    points = figure_data.e_vs_mass_ratio([("m", ds)])
+    med = figure_data.binned_median(points, "mass_ratio", "e", np.linspace(0.0, 1.0, 6))
+    # every median is drawn at the median mass ratio of its bin's points: on the data (0.5 or 1.0)
+    assert set(med["x_median"].tolist()) <= set(points["mass_ratio"].tolist())
+    # equal masses everywhere: the figure is not drawn
+    same = [system(i, [planet(1.0, 3.0 + 0.1 * i, 0.3), planet(1.0, -30.0, 1.2, fate=Fate.EJECTED)]) for i in range(10)]
+    run = write_run(tmp_path / "same", same, 2)
+    assert cli.main(["figures", str(run), "--format", "png", "--out", str(tmp_path / "f")]) == 0
+    assert not (tmp_path / "f" / "e_vs_mass_ratio.png").exists()
+    assert (tmp_path / "f" / "e_histogram_by_branch.png").exists()

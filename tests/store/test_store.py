@@ -131,11 +131,16 @@ def test_part_of_another_spec_is_not_mixed_in(tmp_path):
 def test_changed_spec_refused_naming_the_key_and_fresh_moves_the_old_run_aside(tmp_path):
     folder = folder_with_parts(tmp_path)
     before = sorted(p.name for p in folder.parts_dir.iterdir())
-    changed = parse_spec(TINY_TEXT.replace("end_time = 300.0", "end_time = 2000.0"))
+    changed = parse_spec(TINY_TEXT.replace('integrator = "ias15"', 'integrator = "ias15"\nepsilon = 1e-8'))
     with pytest.raises(InputError) as err:
         prepare_folder(changed, folder.path)
-    assert "integration.end_time" in str(err.value) and "--fresh" in str(err.value)
+    assert "integration.epsilon" in str(err.value) and "--fresh" in str(err.value)
     assert "\n" not in str(err.value)
+    assert sorted(p.name for p in folder.parts_dir.iterdir()) == before
+    # the end time: raised it is accepted (the run is carried further), lowered refused
+    assert prepare_folder(parse_spec(TINY_TEXT.replace("end_time = 300.0", "end_time = 2000.0")), folder.path)
+    with pytest.raises(InputError, match="can only be raised"):
+        prepare_folder(parse_spec(TINY_TEXT.replace("end_time = 300.0", "end_time = 200.0")), folder.path)
     assert sorted(p.name for p in folder.parts_dir.iterdir()) == before
     log = []
     prepare_folder(changed, folder.path, fresh=True, log=log.append)
@@ -209,14 +214,14 @@ def test_ensemble_seen_by_netcdf_c_ncdump(gathered):
     ).stdout
     assert 'e_final:units = "1"' in header and 'a_final:units = "au"' in header
     assert 't_fate:units = "yr"' in header and 'mass_initial:units = "Msun"' in header
-    assert 'fate:flag_meanings = "survived ejected merged hit_star tidally_disrupted"' in header
+    assert 'fate:flag_meanings = "survived ejected merged hit_star tidally_disrupted unbound_at_end"' in header
     assert "end_reason:flag_values = 0b, 1b, 2b, 3b, 4b, 5b" in header
     assert ":spec_toml = " in header and ":rebound_version = " in header
 
 
 def test_ensemble_seen_by_the_netcdf4_library(gathered):
     with netCDF4.Dataset(gathered.ensemble_path) as nc:
-        assert nc.variables["end_reason"].flag_meanings.split()[-2:] == ["wall_clock_cap", "failed"]
+        assert nc.variables["end_reason"].flag_meanings.split()[-2:] == ["stopped_by_wall_clock_cap", "failed"]
         assert nc.variables["q_final"].units == "au"
         assert nc.variables["e_final"].filters()["zlib"]
 

@@ -198,3 +198,18 @@ def test_tidal_candidates_keep_drop_circularise():
     assert circ.n == 2 and "1 tidal-circularisation" in circ.notes[0]
     with pytest.raises(ValueError, match="tidal"):
         simulated_sample(ds, rng=0, tidal="melt")
+
+
+def test_simulated_sample_notes_the_planets_of_unsettled_systems():
+    # two settled systems and one pair stopped at the end time (a snapshot): its two planets are kept
+    # in the sample (one survivor definition) and the note counts them
+    ds = _ds(
+        [
+            system(0, [planet(2.0, 1.0, 0.3), planet(1.0, -3.0, 1.1, fate=Fate.EJECTED)]),
+            system(1, [planet(2.0, 1.5, 0.4), planet(1.0, 2.0, 0.99, fate=Fate.HIT_STAR)]),
+            system(2, [planet(2.0, 1.0, 0.5), planet(1.0, 1.6, 0.2)], reason=EndReason.END_TIME, hill_ratio=0.99),
+        ]
+    )
+    sample = simulated_sample(ds, rng=0, project_sin_i=False)
+    assert sample.n == 4
+    assert any(note.startswith("2 of the 4 simulated planets are in unsettled systems") for note in sample.notes)

@@ -87,7 +87,7 @@ def test_zero_matches_give_exact_one_sided_upper_limit(n):
     assert res.systems.rule_of_three == pytest.approx(3 / n)
     assert abs(res.systems.upper_limit - 3 / n) < 0.1 * 3 / n
     text = render_text(judge(_ensemble(n, 0), _target(true_mass=True)))
-    assert "No system of" in text and "upper limit" in text and "rule of three" in text
+    assert "None of the" in text and "upper limit" in text and "rule of three" in text
 
 
 def test_upper_limit_function():
@@ -296,7 +296,7 @@ def test_json_is_valid_and_carries_the_verdict():
     doc = json.loads(json.dumps(to_dict(judge(_ensemble(100, 3), _target(true_mass=True)))))
     e = doc["ensembles"][0]
     assert e["systems"]["k"] == 3 and e["systems"]["n"] == 100
-    assert "3 of 100 systems" in e["verdict"]
+    assert "3 of 100 settled or likely-stable systems" in e["verdict"]
     assert doc["units"]["a"] == "au" and doc["target"]["msini_mjup"] == pytest.approx(5.0)
 
 

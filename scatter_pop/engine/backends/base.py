@@ -39,7 +39,15 @@ class Backend:
         return 0.0
 
     def integrate_one(self, initial, integration, outcomes, *, checkpoint_path=None, reference=False):
-        """Integrate one :class:`~scatter_pop.engine.initial_conditions.InitialSystem`; a SystemRecord."""
+        """Integrate one :class:`~scatter_pop.engine.initial_conditions.InitialSystem`; a SystemRecord.
+
+        ``checkpoint_path`` is the system's state file: written when the system stops at the
+        wall-clock cap or at the end time (its identity leaving out ``end_time``, ``end_orbits`` and
+        ``wall_seconds_max``), continued from when it exists — to a larger cap or a later end time,
+        with a record equal to an uninterrupted run with that end time — and removed once the system
+        settles.  A back end that cannot continue ignores the file and starts over (DEVELOPERS.md,
+        "Adding an integrator back end").
+        """
         raise NotImplementedError
 
     def integrate_many(self, initials, integration, outcomes, *, checkpoint_paths=None, budgets=None, reference=False):

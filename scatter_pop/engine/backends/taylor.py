@@ -50,6 +50,7 @@ from scatter_pop.engine.encounters import binding_to_interior, classify_star_pas
 from scatter_pop.engine.ledger import FateEntry, Ledger, read_checkpoint, write_checkpoint
 from scatter_pop.engine.outcome import NO_PLANET, EndReason, Fate, SystemRecord
 from scatter_pop.engine.record_builder import build_record, planet_index, planet_name
+from scatter_pop.engine.settlement import GAP_CHECKS, orbit_gap_hill
 from scatter_pop.engine.stability import marchal_bozis_state_ratio, mutual_hill_radius, tidal_disruption_radius
 from scatter_pop.errors import InputError
 
@@ -175,8 +176,8 @@ class LaneSystem:
         identity["integration"].pop("wall_seconds_max")
         identity["integration"]["integrator"] = "taylor"
         self.identity = json.loads(json.dumps(identity))
-        if self.path is not None and self.path.exists():
-            self._restore()
+        if self.path is not None and self.path.exists() and self._restore():
+            pass
         else:
             self._build()
 
@@ -200,8 +201,23 @@ class LaneSystem:
         )
         self._encounter_now()
 
-    def _restore(self):
+    def _restore(self) -> bool:
+        """Continue from the checkpoint; False (start over) if it was written for another end time.
+
+        A state stopped at its end time is not continued to a later one (``t_limit`` NaN in the
+        record): ``propagate_until`` lands exactly on the end time, which changes the last step, so a
+        continuation would not be the run made with the later end time from the start.
+        """
         self.ledger, blob = read_checkpoint(self.path)
+        other = self.ledger.identity.get("integration", {})
+        mine = self.identity["integration"]
+        if (
+            {k: v for k, v in other.items() if k not in ("end_time", "end_orbits")}
+            == {k: v for k, v in mine.items() if k not in ("end_time", "end_orbits")}
+            and self.ledger.identity.get("initial") == self.identity["initial"]
+            and other != mine
+        ):
+            return False
         if self.ledger.identity != self.identity or not blob.startswith(BLOB_MAGIC):
             raise InputError(
                 f"checkpoint {str(self.path)!r}: written for another system or other settings "
@@ -213,6 +229,7 @@ class LaneSystem:
         self.x, self.v = np.array(state["x"]).reshape(-1, 3), np.array(state["v"]).reshape(-1, 3)
         self.t = (float(state["t_hi"]), float(state["t_lo"]))
         self.steps = int(state["steps"])
+        return True
 
     def write_checkpoint(self):
         state = {
@@ -379,7 +396,28 @@ class LaneSystem:
             integrator="taylor",
             circularisation_q=self.out.circularisation_q,
             lanes=self.lanes,
+            star_mass=float(self.m[0]),
+            t_limit=math.nan,  # not continued to a later end time (see _restore)
+            hill_margin=self.integ.hill_margin,
+            hill_ratio=marchal_bozis_state_ratio(self.m, self.x, self.v, G) if self.n == 3 else math.nan,
+            recent_gap=min(gaps) if len(gaps := self.ledger.recent_gaps) == GAP_CHECKS else math.nan,
         )
+
+    def sample_gap(self) -> None:
+        """Book the osculating gap of a bound pair at this check (the last GAP_CHECKS are kept), as
+        the REBOUND path does."""
+        gaps = self.ledger.recent_gaps
+        if self.n - 1 == 2:
+            orbits = [
+                relative_orbit(self.x[k] - self.x[0], self.v[k] - self.v[0], G * (self.m[0] + self.m[k]))
+                for k in (1, 2)
+            ]
+            if all(0.0 < a < math.inf and 0.0 <= e < 1.0 for a, e, _ in orbits):
+                (a1, e1, _), (a2, e2, _) = orbits
+                gaps.append(orbit_gap_hill(self.m[0], self.m[1], self.m[2], a1, e1, a2, e2))
+                del gaps[:-GAP_CHECKS]
+                return
+        gaps.clear()
 
 
 class _Pool:
@@ -517,6 +555,7 @@ class LaneDriver:
             while k is not None:
                 s.eject(k)
                 k = s.unbound_far()
+        s.sample_gap()
         reason = s.settled()
         if reason is None and s.time >= s.t_end:
             reason = EndReason.END_TIME
