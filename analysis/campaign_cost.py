@@ -4,8 +4,9 @@
         [--systems 8] [--orbits 3000]
 
 For each spec, the first ``--systems`` systems are integrated in this process
-(with the spec's integrator, BS by default) for ``--orbits`` initial inner orbits instead
-of the spec's end time.  Printed: CPU seconds per system and per 1000 inner
+(with the spec's integrator, or ``--integrator``) for ``--orbits`` initial inner orbits instead
+of the spec's end time.  A back end that integrates systems together (taylor: SIMD lanes) gets the
+whole sample in one call, as a Dask task's batch, and its CPU time is shared equally.  Printed: CPU seconds per system and per 1000 inner
 orbits, integrator steps per orbit, how many sample systems stopped early, and
 the campaign's cost if every system ran to the spec's end time at the measured
 rate (an upper bound: systems that lose a planet or become Hill-stable stop
@@ -22,7 +23,8 @@ import math
 import time
 
 from scatter_pop.constants import G_AU_YR_MSUN
-from scatter_pop.engine.integrate import integrate_system
+from scatter_pop.engine.backends import backend
+from scatter_pop.engine.integrate import integrate_system, integrate_systems
 from scatter_pop.spec.reader import load_spec
 
 
@@ -32,18 +34,27 @@ def inner_period(spec) -> float:
     return 2 * math.pi * math.sqrt(a**3 / (G_AU_YR_MSUN * spec.star.mass))
 
 
-def measure(path: str, systems: int, orbits: float) -> None:
+def measure(path: str, systems: int, orbits: float, integrator: str | None = None) -> None:
     spec = load_spec(path)
-    short = dataclasses.replace(
-        spec, integration=dataclasses.replace(spec.integration, end_time=None, end_orbits=float(orbits))
-    )
+    integ = spec.integration if integrator is None else dataclasses.replace(spec.integration, integrator=integrator)
+    short = dataclasses.replace(spec, integration=dataclasses.replace(integ, end_time=None, end_orbits=float(orbits)))
     period = inner_period(spec)
     full_orbits = spec.integration.end_time_years(period) / period
     cpu, steps, early, running = [], [], 0, []
-    for i in range(systems):
+    chosen = backend(short.integration.integrator)
+    if chosen.integrates_together:
+        chosen.prepare(short.integration, spec.planets.count + 1)  # compiling: once per worker, not counted
         t0 = time.process_time()
-        rec = integrate_system(short, i)
-        cpu.append(time.process_time() - t0)
+        records = integrate_systems(short, range(systems))
+        shares = [(time.process_time() - t0) / systems] * systems
+    else:
+        records, shares = [], []
+        for i in range(systems):
+            t0 = time.process_time()
+            records.append(integrate_system(short, i))
+            shares.append(time.process_time() - t0)
+    for rec, share in zip(records, shares):
+        cpu.append(share)
         steps.append(rec.steps)
         early += rec.end_reason.word != "stopped_at_end_time"
         if rec.end_reason.word == "stopped_at_end_time":
@@ -52,7 +63,7 @@ def measure(path: str, systems: int, orbits: float) -> None:
     per_korbit = 1000 * per_system / orbits
     upper = per_korbit * full_orbits / 1000 * spec.run.systems / 3600
     print(
-        f"{path}: {spec.planets.count} planets, inner period {period:.3g} yr, end "
+        f"{path} ({short.integration.integrator}): {spec.planets.count} planets, inner period {period:.3g} yr, end "
         f"{full_orbits:.3g} inner orbits, {spec.run.systems} systems"
     )
     print(
@@ -76,9 +87,10 @@ def main() -> None:
     parser.add_argument("specs", nargs="+")
     parser.add_argument("--systems", type=int, default=8)
     parser.add_argument("--orbits", type=float, default=3000.0)
+    parser.add_argument("--integrator", default=None, help="instead of the spec's integration.integrator")
     args = parser.parse_args()
     for path in args.specs:
-        measure(path, args.systems, args.orbits)
+        measure(path, args.systems, args.orbits, args.integrator)
 
 
 if __name__ == "__main__":

@@ -2,6 +2,7 @@
 
     .venv/bin/python analysis/fingerprint.py OUT_DIR            # writes OUT_DIR/fingerprint.json
     .venv/bin/python analysis/fingerprint.py OUT_DIR --against OLD/fingerprint.json
+    .venv/bin/python analysis/fingerprint.py OUT_DIR --integrator bs   # where a spec leaves the default
 
 Runs (in OUT_DIR) the ensemble of ``tests/data/tiny.toml`` and of ``runs/demo.toml`` cut to 24 systems,
 the demo's comparison and verdict on the cut ensemble, and hashes every physics variable of each
@@ -67,19 +68,28 @@ def _hash_json(path) -> str:
     return hashlib.sha256(json.dumps(doc, sort_keys=True).encode()).hexdigest()[:20]
 
 
-def fingerprint(out: Path) -> dict:
+def _with_integrator(text: str, integrator: str | None) -> str:
+    """The spec text with ``integration.integrator = integrator`` where it leaves the default (a spec
+    naming its integrator, like tiny.toml's ias15, is kept as it is; None: unchanged)."""
+    if integrator is None or re.search(r"(?m)^integrator\s*=", text):
+        return text
+    return re.sub(r"(?m)^\[integration\]\n", f'[integration]\nintegrator = "{integrator}"\n', text)
+
+
+def fingerprint(out: Path, integrator: str | None = None) -> dict:
     import scatter_pop as sp
 
     out.mkdir(parents=True, exist_ok=True)
     result = {}
-    # tiny.toml as it is
-    tiny = sp.load_spec(ROOT / "tests" / "data" / "tiny.toml")
+    # tiny.toml as it is (or on the integrator asked for)
+    tiny_text = _with_integrator((ROOT / "tests" / "data" / "tiny.toml").read_text(), integrator)
+    tiny = sp.parse_spec(tiny_text, str(ROOT / "tests" / "data" / "tiny.toml"))
     ds = sp.run_ensemble(tiny, out=out / "tiny", workers=1, log=lambda *_: None)
     for name in _physics_names(ds):
         result[f"tiny/{name}"] = _hash_array(ds[name].values)
     # the demo spec cut to 24 systems, with the demo's comparison and verdict
     text = (ROOT / "runs" / "demo.toml").read_text()
-    text = re.sub(r"(?m)^systems\s*=\s*\d+", "systems = 24", text)
+    text = _with_integrator(re.sub(r"(?m)^systems\s*=\s*\d+", "systems = 24", text), integrator)
     spec_path = out / "demo24.toml"
     spec_path.write_text(text)
     (out / "demo24_target.toml").write_text((ROOT / "runs" / "demo_target.toml").read_text())
@@ -103,8 +113,9 @@ def main(argv=None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("out", type=Path)
     parser.add_argument("--against", type=Path)
+    parser.add_argument("--integrator", default=None, help="integration.integrator where a spec leaves the default")
     args = parser.parse_args(argv)
-    result = fingerprint(args.out)
+    result = fingerprint(args.out, args.integrator)
     (args.out / "fingerprint.json").write_text(json.dumps(result, indent=1, sort_keys=True) + "\n")
     print(f"{len(result)} hashes written to {args.out / 'fingerprint.json'}")
     if args.against:

@@ -27,7 +27,7 @@ def configure(parser) -> None:
     parser.add_argument(
         "--paths",
         default=None,
-        help="comma-separated paths besides the reference (default: all): default, ias15, bs, trace, mercurius",
+        help="comma-separated paths besides the reference (default: all): default, ias15, bs, taylor, trace, mercurius",
     )
     parser.add_argument(
         "--permutations",

@@ -133,6 +133,7 @@ class SystemRecord:
     hill_ratio: float = math.nan  # exact Marchal-Bozis ratio of a pair at the end (NaN unless 2 planets)
     recent_gap: float = math.nan  # min (q_out - Q_in) / R_H,m at the last checks (NaN: no full window)
     settlement: Settlement = Settlement.UNSETTLED
+    lanes: int = 0  # SIMD lanes of the batch integrator that ran it (0: one system at a time)
 
     def count(self, fate: Fate) -> int:
         return sum(1 for p in self.planets if p.fate == fate)

@@ -26,7 +26,16 @@ from scatter_pop.constants import G_AU_YR_MSUN
 from scatter_pop.engine.initial_conditions import InitialSystem, true_anomaly
 from scatter_pop.errors import InputError
 
-__all__ = ["build_simulation", "restore_simulation", "simulation_blob", "contact_time", "STAR_NAME", "MIN_DT_FRACTION"]
+__all__ = [
+    "build_simulation",
+    "restore_simulation",
+    "simulation_blob",
+    "contact_time",
+    "initial_state",
+    "orbit_elements",
+    "STAR_NAME",
+    "MIN_DT_FRACTION",
+]
 
 STAR_NAME = "star"
 MIN_DT_FRACTION = 1e-4  # IAS15 step floor: 1e-4 of the shortest contact free-fall time
@@ -40,6 +49,16 @@ def build_simulation(initial: InitialSystem, integration, planet_names, backend)
     no finite position.
     """
     ini, integ = initial, integration
+    sim = _bodies(ini, planet_names)
+    sim.rand_seed = int(ini.seed) % 2**32  # orders simultaneous contacts; saved with the state
+    backend.configure_simulation(sim, integ, ini)
+    sim.track_energy_offset = 0  # every jump is booked in the ledger instead
+    sim.exit_max_distance = integ.ejection_distance
+    return sim
+
+
+def _bodies(ini: InitialSystem, planet_names) -> rebound.Simulation:
+    """The star and the planets of ``ini`` in the centre-of-mass frame (no integrator set up)."""
     sim = rebound.Simulation()
     sim.G = G_AU_YR_MSUN
     sim.add(m=ini.star_mass, r=ini.star_radius, name=STAR_NAME)
@@ -59,11 +78,31 @@ def build_simulation(initial: InitialSystem, integration, planet_names, backend)
     sim.move_to_com()
     if not all(math.isfinite(c) for k in range(sim.N) for c in (*sim.particles[k].xyz, *sim.particles[k].vxyz)):
         raise InputError(f"initial system {ini.index}: the elements give no finite position (a = {ini.a}, e = {ini.e})")
-    sim.rand_seed = int(ini.seed) % 2**32  # orders simultaneous contacts; saved with the state
-    backend.configure_simulation(sim, integ, ini)
-    sim.track_energy_offset = 0  # every jump is booked in the ledger instead
-    sim.exit_max_distance = integ.ejection_distance
     return sim
+
+
+def initial_state(initial: InitialSystem):
+    """Masses (N,), positions (N, 3) and velocities (N, 3) of ``initial`` (star first), centre-of-mass
+    frame: the same numbers :func:`build_simulation` starts the REBOUND path from."""
+    import numpy as np
+
+    sim = _bodies(initial, [f"p{i}" for i in range(initial.count)])
+    ps = sim.particles
+    m = np.array([ps[k].m for k in range(sim.N)])
+    x = np.array([ps[k].xyz for k in range(sim.N)])
+    v = np.array([ps[k].vxyz for k in range(sim.N)])
+    return m, x, v
+
+
+def orbit_elements(m_star: float, m: float, dx, dv, G: float = G_AU_YR_MSUN):
+    """(a, e, inc, omega, node) of the orbit dx, dv (relative to the star) with REBOUND's definitions,
+    as the REBOUND path records them (``Particle.orbit(primary=star)``)."""
+    star = rebound.Particle(m=float(m_star))
+    p = rebound.Particle(
+        m=float(m), x=float(dx[0]), y=float(dx[1]), z=float(dx[2]), vx=float(dv[0]), vy=float(dv[1]), vz=float(dv[2])
+    )
+    o = p.orbit(primary=star, G=G)
+    return float(o.a), float(o.e), float(o.inc), float(o.omega), float(o.Omega)
 
 
 def contact_time(initial: InitialSystem) -> float:

@@ -46,6 +46,7 @@ def build_record(
     hill_margin: float = 1.01,
     hill_ratio: float = math.nan,
     recent_gap: float = math.nan,
+    lanes: int = 0,
 ) -> SystemRecord:
     """The SystemRecord of a finished (or capped) integration.
 
@@ -80,6 +81,8 @@ def build_record(
 
     A planet still in the simulation whose astrocentric orbit is not an ellipse (a <= 0 or e >= 1)
     gets the fate ``UNBOUND``, not ``SURVIVED``: survivors are bound planets.
+    lanes : int
+        SIMD lanes of the batch integrator that ran the system (0: one system at a time).
     """
     planets = []
     for i in range(initial.count):
@@ -136,4 +139,5 @@ def build_record(
         hill_ratio=float(hill_ratio),
         recent_gap=float(recent_gap),
         settlement=settlement,
+        lanes=int(lanes),
     )

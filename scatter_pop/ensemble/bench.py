@@ -5,7 +5,9 @@ Paths
 ``reference``   IAS15 to the fixed end time, no early stop (``integrate_system(reference=True)``);
 ``default``     the engine's default settings (:class:`~scatter_pop.spec.reader.IntegrationSpec`), settled
                 systems stopped early;
-``<name>``      every other integrator of :data:`~scatter_pop.spec.reader.INTEGRATORS`, with early stopping.
+``<name>``      every other integrator of :data:`~scatter_pop.spec.reader.INTEGRATORS`, with early stopping
+                (``taylor``: heyoka batch mode, the systems integrated together :data:`TOGETHER_BATCH` at a
+                time, each call's CPU time shared equally; compiling, once per process, timed apart).
 
 Every path integrates the same systems (same spec, same indices, hence the same initial
 conditions).  The runs are interleaved system by system (system 0 on every path, then system 1, ...)
@@ -38,6 +40,7 @@ from multiprocessing import get_context
 
 import numpy as np
 
+from scatter_pop.engine.backends import backend
 from scatter_pop.errors import InputError
 from scatter_pop.spec.reader import INTEGRATORS, IntegrationSpec, parse_spec
 
@@ -47,6 +50,7 @@ __all__ = [
     "make_paths",
     "bench_spec",
     "run_paths",
+    "TOGETHER_BATCH",
     "summarize",
     "format_table",
     "measure_scaling",
@@ -119,7 +123,11 @@ def make_paths(spec, names=None) -> list[Path]:
         Path("reference", replace(base, integrator="ias15", stop_when_settled=False), True),
         Path("default", base, False),
     ]
-    paths += [Path(name, replace(base, integrator=name), False) for name in INTEGRATORS if name != base.integrator]
+    paths += [
+        Path(name, replace(base, integrator=name), False)
+        for name in INTEGRATORS
+        if name != base.integrator and backend(name).unavailable() is None
+    ]
     if names:
         known = [p.label for p in paths]
         names = ["default" if n == base.integrator else n for n in names]  # the default's integrator
@@ -133,6 +141,13 @@ def make_paths(spec, names=None) -> list[Path]:
 
 
 # --------------------------------------------------------------------------- running
+TOGETHER_BATCH = 64  # systems per call of a back end that integrates them together (a Dask task's batch)
+
+
+def _rss_mb() -> float:
+    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
+
+
 def _run_one(spec_text: str, integration: dict, reference: bool, index: int):
     """Integrate one system in this process; return (record, CPU seconds, peak RSS in MB)."""
     from scatter_pop.engine.initial_conditions import draw_system
@@ -143,42 +158,88 @@ def _run_one(spec_text: str, integration: dict, reference: bool, index: int):
     c0 = time.process_time()
     record = integrate_initial(initial, IntegrationSpec(**integration), spec.outcomes, reference=reference)
     cpu = time.process_time() - c0
-    return record, cpu, resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
+    return record, cpu, _rss_mb()
 
 
-def run_paths(spec, paths, workers: int = 0, log=print) -> dict:
+def _run_together(spec_text: str, integration: dict, reference: bool, indices: tuple[int, ...]):
+    """Integrate ``indices`` in one call of a back end that integrates them together (as one Dask task
+    would); the call's CPU time is shared equally among them.  What the back end does once per process
+    (compiling) is done first and timed apart.  Returns (rows, compile seconds)."""
+    from scatter_pop.engine.initial_conditions import draw_system
+
+    spec = parse_spec(spec_text, "<bench>")
+    integ = IntegrationSpec(**integration)
+    chosen = backend(integ.integrator)
+    initials = [draw_system(spec, i) for i in indices]
+    compile_seconds = chosen.prepare(integ, max(ini.count for ini in initials) + 1)
+    c0 = time.process_time()
+    records = chosen.integrate_many(initials, integ, spec.outcomes, reference=reference)
+    cpu = (time.process_time() - c0) / len(records)
+    rss = _rss_mb()
+    return [(r, cpu, rss) for r in records], compile_seconds
+
+
+def _jobs(spec, paths, first: int = 0):
+    """(label, function, args, first index) of every integration, interleaved by system index."""
+    jobs = []
+    n = spec.run.systems
+    for p in paths:
+        args = (spec.text, asdict(p.integration), p.reference)
+        if backend(p.integration.integrator).integrates_together:
+            for lo in range(first, n, TOGETHER_BATCH):
+                jobs.append((p.label, _run_together, (*args, tuple(range(lo, min(n, lo + TOGETHER_BATCH)))), lo))
+        else:
+            jobs += [(p.label, _run_one, (*args, i), i) for i in range(first, n)]
+    order = {p.label: k for k, p in enumerate(paths)}
+    return sorted(jobs, key=lambda j: (j[3], order[j[0]]))
+
+
+def run_paths(spec, paths, workers: int = 0, log=print, compile_seconds=None, first: int = 0) -> dict:
     """Integrate every system of ``spec`` on every path, interleaved system by system.
+
+    A back end that integrates systems together gets them :data:`TOGETHER_BATCH` at a time, as a Dask
+    task's batch would reach it (a lone system would run padded in a full batch: not its cost).
 
     Parameters
     ----------
     workers : int
         0: in this process; >= 1: that many fresh worker processes (spawned, so a worker's peak
         memory is that of integrating, not of this driver).
+    compile_seconds : dict, optional
+        Filled with label -> list of the seconds each call spent compiling before it was timed.
+    first : int
+        Integrate systems ``first`` .. ``spec.run.systems - 1`` only (a benchmark grown in blocks).
 
     Returns
     -------
     dict
         label -> list of (record, cpu_seconds, worker_peak_rss_MB), in system order.
     """
-    jobs = [
-        (p.label, (spec.text, asdict(p.integration), p.reference, i)) for i in range(spec.run.systems) for p in paths
-    ]
+    jobs = _jobs(spec, paths, first)
     results = {p.label: [] for p in paths}
     t0 = time.monotonic()
+    pool = None
     if workers == 0:
-        outputs = (_run_one(*args) for _, args in jobs)
-        pool = None
+        outputs = (fn(*args) for _, fn, args, _ in jobs)
     else:
         pool = ProcessPoolExecutor(max_workers=workers, mp_context=get_context("spawn"))
-        outputs = pool.map(_run_one, *zip(*(args for _, args in jobs)), chunksize=1)
+        outputs = (f.result() for f in [pool.submit(fn, *args) for _, fn, args, _ in jobs])
     try:
-        for k, ((label, _), out) in enumerate(zip(jobs, outputs), start=1):
-            results[label].append(out)
+        for k, ((label, fn, _, _), out) in enumerate(zip(jobs, outputs), start=1):
+            if fn is _run_together:
+                rows, seconds = out
+                results[label] += rows
+                if compile_seconds is not None:
+                    compile_seconds.setdefault(label, []).append(seconds)
+            else:
+                results[label].append(out)
             if log and (k % max(1, len(paths) * 10) == 0 or k == len(jobs)):
-                log(f"bench: {k}/{len(jobs)} integrations done, {time.monotonic() - t0:.0f} s")
+                log(f"bench: {k}/{len(jobs)} integration calls done, {time.monotonic() - t0:.0f} s")
     finally:
         if pool is not None:
             pool.shutdown(cancel_futures=True)
+    for label in results:
+        results[label].sort(key=lambda row: row[0].index)
     return results
 
 
@@ -347,12 +408,21 @@ def run_benchmark(
         f"bench: {mode['systems']} systems x {len(chosen)} paths to {mode['end_time']:g} yr "
         f"({'quick' if quick else 'full'} mode, workers {mode['workers']})"
     )
-    results = run_paths(spec, chosen, workers=mode["workers"], log=log)
+    compile_seconds: dict = {}
+    results = run_paths(spec, chosen, workers=mode["workers"], log=log, compile_seconds=compile_seconds)
     summary = summarize(spec, results, permutations=mode["permutations"])
     for p in chosen:
         summary[p.label]["integrator"] = p.integration.integrator
         summary[p.label]["stops_early"] = not p.reference and p.integration.stop_when_settled
+        summary[p.label]["lanes"] = max(r.lanes for r, _, _ in results[p.label])
+        if p.label in compile_seconds:  # per call; the first call of a process compiles, the others reuse
+            summary[p.label]["compile_seconds"] = compile_seconds[p.label]
     log(format_table(summary))
+    for label, seconds in compile_seconds.items():
+        log(
+            f"bench: {label}: {summary[label]['lanes']} SIMD lanes, compiling {max(seconds):.1f} s per worker "
+            "process (not in its CPU time)"
+        )
     record = {
         "mode": "quick" if quick else "full",
         "settings": mode,
@@ -377,6 +447,7 @@ def run_benchmark(
             "platform": platform.platform(),
             "python": sys.version.split()[0],
             "rebound": _version("rebound"),
+            "heyoka": _version("heyoka"),
             "cpus": os.cpu_count(),
         },
     }

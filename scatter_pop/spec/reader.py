@@ -12,13 +12,14 @@ from __future__ import annotations
 import hashlib
 import json
 import math
+import sys
 import tomllib
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
 from typing import Any
 
 from scatter_pop.constants import GCM3_MSUN_AU3, MJUP_MSUN, R_JUP_AU, R_SUN_AU
-from scatter_pop.engine.backends import backend_names
+from scatter_pop.engine.backends import backend, backend_names
 from scatter_pop.errors import InputError
 from scatter_pop.spec.keys import Table, coerce, toml_repr
 
@@ -104,11 +105,12 @@ END_KEYS = ("end_time", "end_orbits")  # the integration keys that set where a r
 
 @dataclass(frozen=True)
 class IntegrationSpec:
-    integrator: str = "bs"
+    integrator: str = "taylor"  # falls back to FALLBACK_INTEGRATOR where heyoka cannot be imported
     end_time: float | None = None  # yr
     end_orbits: float | None = None  # initial inner orbits
     epsilon: float = 1e-9  # IAS15 accuracy parameter
     bs_epsilon: float = 1e-10  # BS tolerance (integrator bs)
+    taylor_tolerance: float = 1e-12  # heyoka Taylor-series tolerance (integrator taylor)
     steps_per_orbit: float = 50.0  # hybrid step = current shortest period / this
     r_crit_hill: float = 3.0  # hybrid switching radius, in Hill radii
     ejection_distance: float = 1000.0  # AU from the star
@@ -309,12 +311,48 @@ def _planets(table) -> PlanetsSpec:
     return PlanetsSpec(count, masses, a_inner, spacing, a_list, e_sigma, math.radians(inc_deg), density, radius)
 
 
+FALLBACK_INTEGRATOR = "bs"  # used when the default's package cannot be imported here
+
+
+def _default_integrator(default: str) -> str:
+    """The default integrator, or :data:`FALLBACK_INTEGRATOR` with a one-line notice on stderr when the
+    default's package cannot be imported in this Python."""
+    why = backend(default).unavailable()
+    if why is None:
+        return default
+    if not _NOTICES:
+        print(
+            f"notice: integration.integrator not given and the default {default!r} is unavailable ({why}); "
+            f"using {FALLBACK_INTEGRATOR!r}",
+            file=sys.stderr,
+        )
+        _NOTICES.add(default)
+    return FALLBACK_INTEGRATOR
+
+
+_NOTICES: set = set()
+
+
 def _integration(table) -> IntegrationSpec:
     s = Table(table, "integration")
     d = IntegrationSpec()
-    integrator = s.get(
-        "integrator", str, d.integrator, check=lambda x: x in INTEGRATORS, allowed="one of " + ", ".join(INTEGRATORS)
-    )
+    if s.has("integrator"):
+        integrator = s.get(
+            "integrator",
+            str,
+            d.integrator,
+            check=lambda x: x in INTEGRATORS,
+            allowed="one of " + ", ".join(INTEGRATORS),
+        )
+        why = backend(integrator).unavailable()
+        if why is not None:
+            others = [n for n in INTEGRATORS if n != integrator and backend(n).unavailable() is None]
+            raise InputError(
+                f"integration.integrator = {integrator!r}: unavailable in this Python ({why}); "
+                f"install it or choose one of {', '.join(others)}"
+            )
+    else:
+        integrator = _default_integrator(d.integrator)
     if s.has("end_time") == s.has("end_orbits"):
         raise InputError(
             "integration.end_time / integration.end_orbits: give exactly one "
@@ -330,6 +368,9 @@ def _integration(table) -> IntegrationSpec:
         end_orbits=end_orbits,
         epsilon=s.get("epsilon", float, d.epsilon, check=lambda x: 0 < x < 1, allowed="> 0 and < 1"),
         bs_epsilon=s.get("bs_epsilon", float, d.bs_epsilon, check=lambda x: 0 < x < 1, allowed="> 0 and < 1"),
+        taylor_tolerance=s.get(
+            "taylor_tolerance", float, d.taylor_tolerance, check=lambda x: 1e-18 <= x < 1, allowed=">= 1e-18 and < 1"
+        ),
         steps_per_orbit=s.get("steps_per_orbit", float, d.steps_per_orbit, check=lambda x: x >= 5, allowed=">= 5"),
         r_crit_hill=s.get("r_crit_hill", float, d.r_crit_hill, check=_positive, allowed="> 0 (Hill radii)"),
         ejection_distance=s.get("ejection_distance", float, d.ejection_distance, check=_positive, allowed="in AU, > 0"),

@@ -64,6 +64,15 @@ def _utc_now() -> str:
     return _dt.datetime.now(_dt.UTC).isoformat(timespec="seconds")
 
 
+def _package_version(name: str) -> str:
+    from importlib.metadata import PackageNotFoundError, version
+
+    try:
+        return version(name)
+    except PackageNotFoundError:
+        return "not installed"
+
+
 def versions() -> dict[str, str]:
     """Versions of the software that produced a file (global attributes)."""
     import dask
@@ -77,6 +86,7 @@ def versions() -> dict[str, str]:
         "scatter_pop_version": package_version(),
         **({"scatter_pop_commit": commit} if commit else {}),
         "rebound_version": rebound.__version__,
+        "heyoka_version": _package_version("heyoka"),  # read without importing it (LLVM loads in ~1 s)
         "numpy_version": np.__version__,
         "dask_version": dask.__version__,
         "xarray_version": xr.__version__,

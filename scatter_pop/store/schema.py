@@ -132,6 +132,14 @@ VARIABLES: tuple[Var, ...] = (
     Var("energy_error", S, "f8", "1", "relative energy error, corrected for mergers and removals"),
     Var("angmom_error", S, "f8", "1", "relative angular-momentum error, corrected for mergers and removals"),
     Var("steps", S, "i8", "1", "integrator steps taken"),
+    Var(
+        "simd_lanes",
+        S,
+        "i1",
+        "1",
+        "SIMD lanes of the batch integrator that ran the system (0: one system at a time)",
+        physics=False,
+    ),
     Var("wall_seconds", S, "f8", "s", "wall-clock time of the integration", physics=False),
     Var("attempts", S, "i1", "1", "times the system was started (worker deaths retried)", physics=False),
 )
@@ -216,6 +224,7 @@ def records_to_dataset(records: list[SystemRecord], n_planets: int) -> xr.Datase
             "attempts",
         ):
             data[name][i] = getattr(r, name)
+        data["simd_lanes"][i] = r.lanes
     ds = xr.Dataset(
         {v.name: (v.dims, data[v.name], _attrs(v)) for v in VARIABLES},
         coords={

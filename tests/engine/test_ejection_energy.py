@@ -51,6 +51,7 @@ e_sigma = 0.01
 inc_sigma = 1.0
 radius = 1.0
 [integration]
+integrator = "bs"
 end_orbits = 20000
 ejection_distance = 50.0
 """

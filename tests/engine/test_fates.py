@@ -40,6 +40,8 @@ def system(planets, star_mass=1.0, star_radius=R_SUN_AU):
 
 
 def run(initial, end_time, reference=False, **integ):
+    """The REBOUND path (BS unless ``integrator`` is given; the taylor path has tests/engine/test_taylor.py)."""
+    integ.setdefault("integrator", "bs")
     return integrate_initial(initial, IntegrationSpec(end_time=end_time, **integ), OutcomeSpec(), reference=reference)
 
 
@@ -59,7 +61,7 @@ def head_on(phase=0.5):
 
 def test_head_on_collision_merges_conserving_mass_and_momentum():
     initial = head_on()
-    sim_run = SystemRun(initial, IntegrationSpec(end_time=5.0), OutcomeSpec(), None, True)
+    sim_run = SystemRun(initial, IntegrationSpec(integrator="bs", end_time=5.0), OutcomeSpec(), None, True)
     p_before = total_momentum(sim_run.sim)
     scale = MJ * 2 * math.pi * math.sqrt(1 / 5.0)  # planet momentum scale, M_sun AU/yr
     assert np.linalg.norm(p_before) < 1e-15 * scale  # centre-of-mass frame
@@ -138,7 +140,7 @@ def test_bound_wanderer_returns_and_escape_radius_is_reset():
     sim_run = SystemRun(
         initial,
         # checks every inner orbit, so that some come after the return (the escape radius is reset at checks)
-        IntegrationSpec(end_time=1.05 * period(100.0), ejection_distance=100.0, check_orbits=1.0),
+        IntegrationSpec(integrator="bs", end_time=1.05 * period(100.0), ejection_distance=100.0, check_orbits=1.0),
         OutcomeSpec(),
         None,
         True,
@@ -174,7 +176,7 @@ def test_plunging_orbit_hits_the_star():
 def test_pericentre_inside_disruption_distance_disrupts():
     # 2.7 r_t = 0.0131 AU for Jupiter (Guillochon, Ramirez-Ruiz & Lin 2011, ApJ 732, 74; REFERENCES.md);
     # q = 0.010 AU is outside the star (R_sun + R_J = 0.0051 AU) but inside 2.7 r_t.
-    sim_run = SystemRun(plunger(0.010), IntegrationSpec(end_time=10.0), OutcomeSpec(), None, False)
+    sim_run = SystemRun(plunger(0.010), IntegrationSpec(integrator="bs", end_time=10.0), OutcomeSpec(), None, False)
     rec = sim_run.run()
     p = rec.planets[0]
     assert p.fate == Fate.DISRUPTED
@@ -223,7 +225,9 @@ def test_energy_books_close_through_a_merger_and_an_ejection():
             dict(m=MJ, a=-40.0, e=1.2, omega=2.0),
         ]
     )
-    sim_run = SystemRun(initial, IntegrationSpec(end_time=3000.0, ejection_distance=60.0), OutcomeSpec(), None, False)
+    sim_run = SystemRun(
+        initial, IntegrationSpec(integrator="bs", end_time=3000.0, ejection_distance=60.0), OutcomeSpec(), None, False
+    )
     e0 = sim_run.sim.energy()
     rec = sim_run.run()
     assert [p.fate for p in rec.planets] == [Fate.SURVIVED, Fate.MERGED, Fate.EJECTED]

@@ -57,7 +57,7 @@ def same(rec1, rec2):
 # --------------------------------------------------------------------------- frame and two-body
 def test_simulation_starts_from_astrocentric_elements():
     ini = draw_system(load_spec(TINY), 2)
-    sim = SystemRun(ini, IntegrationSpec(end_time=1.0), OutcomeSpec(), None, True).sim
+    sim = SystemRun(ini, IntegrationSpec(integrator="bs", end_time=1.0), OutcomeSpec(), None, True).sim
     star = sim.particles[0]
     for k in range(ini.count):
         o = sim.particles[f"p{k}"].orbit(primary=star)

@@ -29,6 +29,15 @@ class Backend:
         """Why this back end cannot run in this Python (a missing package), or None."""
         return None
 
+    def lanes(self) -> int:
+        """SIMD lanes it integrates together on this machine (0: one system at a time)."""
+        return 0
+
+    def prepare(self, integration, bodies: int) -> float:
+        """Do once what the first integration in this process would (compile, say) for systems of up
+        to ``bodies`` bodies, so that a benchmark can time it apart; the seconds it took."""
+        return 0.0
+
     def integrate_one(self, initial, integration, outcomes, *, checkpoint_path=None, reference=False):
         """Integrate one :class:`~scatter_pop.engine.initial_conditions.InitialSystem`; a SystemRecord.
 

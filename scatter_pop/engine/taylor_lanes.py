@@ -19,11 +19,17 @@ tidal     star, planet k                eta r_t,k   inward: disruption if the tw
 escape    star, planet k                D_eject     outward: ejection if unbound
 ========  ===========================  ==========  ==========================================
 
-heyoka's step-size control sees the event functions too (measured: an ejection event d^2 - D^2 with
+heyoka's step-size control sees unscaled event functions (measured: an ejection event d^2 - D^2 with
 D = 1000 AU loosened the steps and raised the energy error of the benchmark systems from 6e-13 to
-6e-8, and changing a parameter used only in an event changed the lane's trajectory).  Every event
-function is therefore multiplied by EVENT_SCALE = 1e-9: the trajectories are then bitwise those of the
-same integrator without events, and event-only parameters can change freely.
+6e-8, and changing a parameter used only in an event changed the lane's trajectory;
+``analysis/taylor_event_probe.py``: one plain contact event changes a 3-body trajectory, the same event
+times 1e-9 leaves it bitwise alone).  Every event function is therefore multiplied by EVENT_SCALE = 1e-9,
+so that event-only parameters (the first-encounter radius, switched off once found) can change freely
+(``tests/engine/test_taylor.py`` checks it).  With the full set of 15 events (4 bodies) the trajectories
+are not bitwise those of the bare N-body integrator (``analysis/taylor_event_cost.py``: the extra terms
+change the compiled evaluation, then chaos amplifies the last bits); they are still a function of the
+lane's own state and parameters only.  The event search costs about as much as the step itself
+(27 vs 48 us per 8-lane step at tol 1e-9, 28 vs 66 us at 1e-12, measured).
 
 The callbacks only record (lane, time, slot); every kind but ``hill`` also asks the step callback
 of ``propagate_until`` to stop the call after the step (all lanes stop at the end of a normal step;
@@ -41,15 +47,24 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .constants import G_AU_YR_MSUN
+from scatter_pop.constants import G_AU_YR_MSUN
 
-__all__ = ["LaneIntegrator", "lane_integrator", "EventSlot", "COMPILE_SECONDS", "energy", "angular_momentum",
-           "move_to_com", "orbit_elements", "STOPPING_KINDS"]
+__all__ = [
+    "LaneIntegrator",
+    "lane_integrator",
+    "EventSlot",
+    "COMPILE_SECONDS",
+    "energy",
+    "angular_momentum",
+    "move_to_com",
+    "STOPPING_KINDS",
+    "lane_count",
+]
 
 STOPPING_KINDS = ("contact", "star", "tidal", "escape")
-EVENT_SCALE = 1e-9             # event functions scaled so that they never enter the step-size control
-TARGET_CHECK_STEPS = 16        # the step callback looks for lanes at their target every this many steps
-COMPILE_SECONDS: dict = {}     # (bodies, lanes, tolerance) -> seconds the compilation took
+EVENT_SCALE = 1e-9  # event functions scaled so that they never enter the step-size control
+TARGET_CHECK_STEPS = 16  # the step callback looks for lanes at their target every this many steps
+COMPILE_SECONDS: dict = {}  # (bodies, lanes, tolerance) -> seconds the compilation took
 _CACHE = threading.local()
 
 
@@ -67,11 +82,11 @@ class _Recorder:
     """What the event and step callbacks write during one ``propagate_until`` call."""
 
     def __init__(self):
-        self.hits: list = []          # (lane, time, slot index)
+        self.hits: list = []  # (lane, time, slot index)
         self.stop = False
         self.calls = 0
         self.targets = None
-        self.real = None              # mask of the lanes that hold a real system
+        self.real = None  # mask of the lanes that hold a real system
 
 
 class LaneIntegrator:
@@ -79,6 +94,7 @@ class LaneIntegrator:
 
     def __init__(self, n: int, lanes: int, tol: float):
         import heyoka as hy
+
         self.n, self.lanes, self.tol = int(n), int(lanes), float(tol)
         self.recorder = _Recorder()
         eqs = hy.model.nbody(self.n, masses=[hy.par[k] for k in range(self.n)], Gconst=G_AU_YR_MSUN)
@@ -93,15 +109,21 @@ class LaneIntegrator:
         self.n_par = self.n + len(self.slots)
         events = []
         for q, slot in enumerate(self.slots):
-            a, b = var[6 * slot.i:6 * slot.i + 3], var[6 * slot.j:6 * slot.j + 3]
+            a, b = var[6 * slot.i : 6 * slot.i + 3], var[6 * slot.j : 6 * slot.j + 3]
             d2 = sum(((a[c] - b[c]) ** 2 for c in range(3)), hy.expression(0.0))
             expr = EVENT_SCALE * (d2 - hy.par[slot.par] ** 2)
             direction = hy.event_direction.positive if slot.kind == "escape" else hy.event_direction.negative
-            events.append(hy.nt_event_batch(expr, self._event_callback(q, slot.kind in STOPPING_KINDS),
-                                            direction=direction))
+            events.append(
+                hy.nt_event_batch(expr, self._event_callback(q, slot.kind in STOPPING_KINDS), direction=direction)
+            )
         start = time.perf_counter()
-        self.ta = hy.taylor_adaptive_batch(eqs, np.zeros((6 * self.n, self.lanes)), tol=self.tol,
-                                           pars=np.zeros((self.n_par, self.lanes)), nt_events=events)
+        self.ta = hy.taylor_adaptive_batch(
+            eqs,
+            np.zeros((6 * self.n, self.lanes)),
+            tol=self.tol,
+            pars=np.zeros((self.n_par, self.lanes)),
+            nt_events=events,
+        )
         COMPILE_SECONDS[(self.n, self.lanes, self.tol)] = time.perf_counter() - start
         self._ok = {hy.taylor_outcome.time_limit, hy.taylor_outcome.cb_stop, hy.taylor_outcome.success}
 
@@ -112,6 +134,7 @@ class LaneIntegrator:
             recorder.hits.append((int(lane), float(t), q))
             if stops:
                 recorder.stop = True
+
         return callback
 
     def _step_callback(self, ta) -> bool:
@@ -163,6 +186,14 @@ class LaneIntegrator:
         self.ta.pars[index, lane] = value
 
 
+def lane_count() -> int:
+    """heyoka's recommended SIMD width on this machine (doubles per register: 8 with AVX-512, 4 with
+    AVX2), at least 2 (a 1-lane batch takes another code path in heyoka)."""
+    import heyoka
+
+    return max(2, int(heyoka.recommended_simd_size()))
+
+
 def lane_integrator(n: int, lanes: int, tol: float) -> LaneIntegrator:
     """The compiled integrator for (n bodies, lanes, tol) of this thread (compiled on first use)."""
     cache = getattr(_CACHE, "integrators", None)
@@ -196,13 +227,3 @@ def move_to_com(m, x, v):
     m = np.asarray(m, float)
     mt = m.sum()
     return (x - (m[:, None] * x).sum(axis=0) / mt, v - (m[:, None] * v).sum(axis=0) / mt)
-
-
-def orbit_elements(m_star, m_k, dx, dv, G=G_AU_YR_MSUN):
-    """(a, e, inc, omega, node) of the relative orbit dx, dv about the star (REBOUND's definitions)."""
-    import rebound
-    star = rebound.Particle(m=float(m_star))
-    p = rebound.Particle(m=float(m_k), x=float(dx[0]), y=float(dx[1]), z=float(dx[2]),
-                         vx=float(dv[0]), vy=float(dv[1]), vz=float(dv[2]))
-    o = p.orbit(primary=star, G=G)
-    return float(o.a), float(o.e), float(o.inc), float(o.omega), float(o.Omega)
