@@ -8,7 +8,7 @@ import subprocess
 from importlib.metadata import PackageNotFoundError, version
 from pathlib import Path
 
-__all__ = ["package_version", "source_commit", "describe"]
+__all__ = ["package_version", "source_commit", "describe", "versions"]
 
 
 def package_version() -> str:
@@ -50,3 +50,36 @@ def describe() -> str:
     """``scatter_pop <version>`` and, from a checkout, ``(commit <sha>)``."""
     commit = source_commit()
     return f"scatter_pop {package_version()}" + (f" (commit {commit})" if commit else "")
+
+
+def _package_version(name: str) -> str:
+    from importlib.metadata import PackageNotFoundError, version
+
+    try:
+        return version(name)
+    except PackageNotFoundError:
+        return "not installed"
+
+
+def versions() -> dict[str, str]:
+    """Versions of the software that produced a file (global attributes)."""
+    import platform
+
+    import dask
+    import netCDF4
+    import numpy as np
+    import rebound
+    import xarray as xr
+
+    commit = source_commit()
+    return {
+        "scatter_pop_version": package_version(),
+        **({"scatter_pop_commit": commit} if commit else {}),
+        "rebound_version": rebound.__version__,
+        "heyoka_version": _package_version("heyoka"),  # read without importing it (LLVM loads in ~1 s)
+        "numpy_version": np.__version__,
+        "dask_version": dask.__version__,
+        "xarray_version": xr.__version__,
+        "netcdf4_version": netCDF4.__version__,
+        "python_version": platform.python_version(),
+    }

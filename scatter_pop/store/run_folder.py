@@ -22,7 +22,6 @@ import datetime as _dt
 import fcntl
 import json
 import os
-import platform
 import socket
 from contextlib import contextmanager
 from pathlib import Path
@@ -31,6 +30,7 @@ import numpy as np
 import xarray as xr
 
 from scatter_pop.errors import InputError
+from scatter_pop.provenance import versions  # re-exported: the versions a run folder records
 from scatter_pop.spec.reader import EnsembleSpec, parse_spec
 from scatter_pop.store.atomic import atomic_write_netcdf, atomic_write_text
 from scatter_pop.store.parts import Part, drop_contained, load, part_name, scan, stack
@@ -62,37 +62,6 @@ ENSEMBLE_COMPRESSION = {"zlib": True, "complevel": 4}
 
 def _utc_now() -> str:
     return _dt.datetime.now(_dt.UTC).isoformat(timespec="seconds")
-
-
-def _package_version(name: str) -> str:
-    from importlib.metadata import PackageNotFoundError, version
-
-    try:
-        return version(name)
-    except PackageNotFoundError:
-        return "not installed"
-
-
-def versions() -> dict[str, str]:
-    """Versions of the software that produced a file (global attributes)."""
-    import dask
-    import netCDF4
-    import rebound
-
-    from scatter_pop.provenance import package_version, source_commit
-
-    commit = source_commit()
-    return {
-        "scatter_pop_version": package_version(),
-        **({"scatter_pop_commit": commit} if commit else {}),
-        "rebound_version": rebound.__version__,
-        "heyoka_version": _package_version("heyoka"),  # read without importing it (LLVM loads in ~1 s)
-        "numpy_version": np.__version__,
-        "dask_version": dask.__version__,
-        "xarray_version": xr.__version__,
-        "netcdf4_version": netCDF4.__version__,
-        "python_version": platform.python_version(),
-    }
 
 
 class RunFolder:
