@@ -53,6 +53,8 @@ _API = {
     "run_until": "scatter_pop.target",
     "Target": "scatter_pop.target",
     "Windows": "scatter_pop.target",
+    "load_target_file": "scatter_pop.target.target_file",
+    "QualityCuts": "scatter_pop.store.schema",
     "write_figure_set": "scatter_pop.paper",
     "InputError": "scatter_pop.errors",
 }

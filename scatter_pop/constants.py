@@ -27,6 +27,8 @@ __all__ = [
     "R_JUP_AU",
     "G_AU_YR_MSUN",
     "AU_PER_YR_MS",
+    "G_SI",
+    "M_SUN_KG",
 ]
 
 AU_M = 149_597_870_700.0  # IAU 2012 B2
@@ -43,6 +45,9 @@ R_JUP_AU = R_JUP_M / AU_M
 G_AU_YR_MSUN = GM_SUN_SI * YEAR_S**2 / AU_M**3  # 39.4769...; REBOUND's ('yr','AU','Msun') G
 AU_PER_YR_MS = AU_M / YEAR_S  # 1 AU/yr in m/s
 
+G_SI = 6.67430e-11  # CODATA 2018, m^3 kg^-1 s^-2
+M_SUN_KG = GM_SUN_SI / G_SI  # nominal solar mass in kg (IAU 2015 B3 defines (GM)_sun; G from CODATA 2018)
+
 # Bulk density (g cm^-3) -> M_sun / AU^3
-GCM3_MSUN_AU3 = 1e3 * AU_M**3 / (GM_SUN_SI / 6.67430e-11)  # G from CODATA 2018
+GCM3_MSUN_AU3 = 1e3 * AU_M**3 / M_SUN_KG
 TWO_PI = 2.0 * math.pi

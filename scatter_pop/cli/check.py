@@ -5,6 +5,7 @@ from __future__ import annotations
 import json
 from dataclasses import asdict
 
+from scatter_pop.cli.options import add_format_arguments
 from scatter_pop.constants import MJUP_MSUN, R_JUP_AU, R_SUN_AU
 from scatter_pop.spec.reader import load_spec
 
@@ -12,13 +13,21 @@ __all__ = ["configure", "execute"]
 
 
 def configure(parser) -> None:
-    parser.add_argument("spec", help="ensemble spec (TOML)")
-    parser.add_argument("--json", action="store_true", help="print the resolved spec as JSON (internal units)")
+    parser.add_argument("spec", metavar="SPEC", help="ensemble spec (TOML)")
+    add_format_arguments(parser, ("text", "json"))
 
 
 def execute(args) -> int:
     spec = load_spec(args.spec)
-    if args.json:
+    # what `run SPEC` would refuse before computing, refused here too: the walltime of a batch
+    # cluster against the longest batch (read-only look at the default run folder)
+    from scatter_pop.spec.cluster_table import BATCH
+
+    if spec.cluster.kind in BATCH:
+        from scatter_pop.ensemble.driver import EnsembleRun, default_out
+
+        EnsembleRun(spec, default_out(spec), log=lambda *_: None).check_cluster()
+    if args.format == "json":
         doc = asdict(spec)
         doc.pop("text", None)
         print(json.dumps(doc, indent=2, default=repr))

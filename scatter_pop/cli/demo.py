@@ -24,9 +24,7 @@ The demo's star and planet are invented; the output says so.
 
 from __future__ import annotations
 
-import argparse
 import sys
-import tomllib
 from pathlib import Path
 
 from scatter_pop.errors import InputError
@@ -34,65 +32,18 @@ from scatter_pop.errors import InputError
 __all__ = ["main", "load_demo_target", "run_demo", "DEFAULT_OBSERVED"]
 
 DEFAULT_OBSERVED = Path(__file__).resolve().parents[2] / "tests" / "data" / "observed_rv_giants.csv"
-_TARGET_KEYS = ("name", "e", "e_err", "a", "a_err", "msini", "msini_err", "mstar", "invented")
-_SURVEY_KEYS = ("k_min", "baseline")
 
 
 def load_demo_target(path):
     """Read the demo's target file: (Target, RVSurvey or None, invented flag).
 
-    Raises
-    ------
-    InputError
-        Unreadable file, unknown key, missing or out-of-range value (one line
-        naming the file and the key).
+    The file is the target file of ``scatter-pop judge`` (:mod:`scatter_pop.target.target_file`);
+    InputError names the file and the key.
     """
-    from scatter_pop.survey.forward_model import RVSurvey
-    from scatter_pop.target.planet import target_from_flags
+    from scatter_pop.target.target_file import load_target_file
 
-    path = Path(path)
-    try:
-        doc = tomllib.loads(path.read_text(encoding="utf-8"))
-    except FileNotFoundError:
-        raise InputError(f"target file {str(path)!r} does not exist (give --target FILE)") from None
-    except (OSError, UnicodeDecodeError, tomllib.TOMLDecodeError) as exc:
-        raise InputError(f"target file {str(path)!r} cannot be read: {' '.join(str(exc).split())}") from None
-    for section in doc:
-        if section not in ("target", "survey"):
-            raise InputError(f"{path}: [{section}]: unknown section; allowed: [target], [survey]")
-    table = doc.get("target")
-    if not isinstance(table, dict):
-        raise InputError(f"{path}: section [target] is missing")
-    for key in table:
-        if key not in _TARGET_KEYS:
-            raise InputError(f"{path}: target.{key}: unknown key; allowed: {', '.join(_TARGET_KEYS)}")
-    for key in ("e", "e_err", "a", "a_err", "msini", "msini_err"):
-        if key not in table:
-            raise InputError(f"{path}: target.{key} is missing")
-    try:
-        target = target_from_flags(
-            **{k: table[k] for k in ("e", "e_err", "a", "a_err", "msini", "msini_err")},
-            mstar=table.get("mstar"),
-            name=str(table.get("name", "target")),
-        )
-    except InputError as exc:
-        raise InputError(f"{path}: target: {exc}") from None
-    survey = None
-    if "survey" in doc:
-        s = doc["survey"]
-        if not isinstance(s, dict) or set(s) != set(_SURVEY_KEYS):
-            raise InputError(f"{path}: [survey] must hold exactly k_min (m/s, >= 0) and baseline (yr, > 0)")
-        k_min, baseline = s["k_min"], s["baseline"]
-        if (
-            not all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in (k_min, baseline))
-            or k_min < 0
-            or baseline <= 0
-        ):
-            raise InputError(
-                f"{path}: [survey] k_min = {k_min!r}, baseline = {baseline!r}: need k_min >= 0 m/s and baseline > 0 yr"
-            )
-        survey = RVSurvey(float(k_min), float(baseline))
-    return target, survey, bool(table.get("invented", False))
+    chosen = load_target_file(path, need_mass=True)
+    return chosen.target, chosen.survey, chosen.invented
 
 
 def run_demo(
@@ -140,7 +91,9 @@ def run_demo(
 
     bad = [f for f in formats if f not in FORMATS]
     if not formats or bad:
-        raise InputError(f"--format {','.join(formats)!r}: allowed formats: {', '.join(FORMATS)}")
+        raise InputError(
+            f"formats = {','.join(formats)!r}: allowed formats: {', '.join(FORMATS)}", arguments=("formats",)
+        )
     spec = load_spec(spec_path)
     target_path = Path(target_path) if target_path else Path(spec_path).with_name(Path(spec_path).stem + "_target.toml")
     target, survey, invented = load_demo_target(target_path)
@@ -206,22 +159,29 @@ def run_demo(
 
 def main(argv=None) -> int:
     """Command line of the demo; returns the exit status."""
-    parser = argparse.ArgumentParser(
+    import sys as _sys
+
+    from scatter_pop.cli.main import OneLineParser, attach_negative_values, flags_of
+
+    parser = OneLineParser(
         prog="python -m scatter_pop.cli.demo",
         description="Run the demo end to end (ensemble, comparison, verdict, figures).",
     )
-    parser.add_argument("spec", help="ensemble spec (TOML), e.g. runs/demo.toml")
+    parser.add_argument("spec", metavar="SPEC", help="ensemble spec (TOML), e.g. runs/demo.toml")
     parser.add_argument("--out", required=True, help="run folder, e.g. runs/demo_out")
     parser.add_argument("--target", help="target file (default <spec stem>_target.toml beside the spec)")
     parser.add_argument("--observed", default=str(DEFAULT_OBSERVED), help="observed catalogue (CSV)")
-    parser.add_argument("--workers", type=int, help="local Dask workers (default: one per core)")
+    parser.add_argument("--workers", help="local Dask workers (default: one per core)")
     parser.add_argument("--format", default="pdf,png", help="figure formats (default pdf,png)")
-    args = parser.parse_args(argv)
+    try:
+        args = parser.parse_args(attach_negative_values(list(_sys.argv[1:] if argv is None else argv)))
+    except SystemExit as exc:
+        return int(exc.code or 0)
+    from scatter_pop.cli.options import integer_flag
     from scatter_pop.ensemble.stop_signals import stop_signals
 
     try:
-        if args.workers is not None and args.workers < 1:
-            raise InputError(f"--workers {args.workers}: must be >= 1")
+        workers = None if args.workers is None else integer_flag(args.workers, "--workers", 1, 100_000)
         formats = tuple(f.strip() for f in args.format.split(",") if f.strip())
         # Ctrl-C and SIGTERM end the demo as they end `scatter-pop run`: at a safe point of the run
         # phase, one line, exit status 130 / 143; a second Ctrl-C does not wait for the clean-up
@@ -231,11 +191,12 @@ def main(argv=None) -> int:
                 args.out,
                 target_path=args.target,
                 observed=args.observed,
-                workers=args.workers,
+                workers=workers,
                 formats=formats,
             )
     except InputError as exc:
-        print(f"demo: error: {exc}", file=sys.stderr)
+        flags = {**flags_of(parser, None), "formats": "--format"}
+        print(f"demo: error: {exc.in_terms_of(flags)}", file=sys.stderr)
         return 2
     except KeyboardInterrupt:
         print("demo: interrupted; rerun the same command to resume", file=sys.stderr)

@@ -1,21 +1,36 @@
-"""``scatter-pop figures DIR [DIR...] [--observed CSV] [--target E,E_ERR,A,A_ERR] [--format pdf,png]``.
+"""``scatter-pop figures DIR [DIR...] [--observed CSV] [--target FILE] [--format pdf,png]``.
 
-Writes the paper's figure set, the CSV of every plotted number and the LaTeX
-table of branching ratios and comparison statistics
-(:func:`scatter_pop.paper.figure_set.write_figure_set`) into ``--out`` (default
-``<first DIR>/figures``).  Every flag is checked, the catalogue read and the
-ensembles opened before anything is written.
+Writes the paper's figure set, the CSV of every plotted number and the LaTeX table of branching
+ratios and comparison statistics (:func:`scatter_pop.paper.figure_set.write_figure_set`) into
+``--out`` (default ``<first DIR>/figures``).  The sample cuts and quality cuts are those of
+``scatter-pop compare``, so the CDF figure reproduces a comparison made with the same flags; the
+target file is that of ``scatter-pop judge`` (only e, a and their errors are drawn).  Every flag is
+checked, the catalogue read and the ensembles opened before anything is written.
 """
 
 from __future__ import annotations
 
 from pathlib import Path
 
-from scatter_pop.cli.judge import add_common_arguments, check_common, open_runs
-from scatter_pop.constants import MJUP_MSUN
+from scatter_pop.cli.options import (
+    add_quality_arguments,
+    add_sample_arguments,
+    add_statistics_arguments,
+    add_target_arguments,
+    check_statistics,
+    integer_flag,
+    load_observed,
+    open_runs,
+    output_folder,
+    quality_from_args,
+    sample_options,
+    target_from_args,
+)
 from scatter_pop.errors import InputError
 
 __all__ = ["configure", "execute"]
+
+ARGUMENT_FLAGS = {"star_mass": "--ensemble-star-mass", "formats": "--format", "dir": "DIR"}
 
 
 def configure(parser) -> None:
@@ -23,15 +38,8 @@ def configure(parser) -> None:
 
     parser.add_argument("dirs", nargs="+", metavar="DIR", help="run folders (each holding ensemble.nc)")
     parser.add_argument(
-        "--observed",
-        metavar="CSV",
-        help="observed catalogue for the e CDF and the comparison statistics "
-        "(default columns of the shipped observed_rv_giants.csv)",
+        "--observed", metavar="CSV", help="observed catalogue for the e CDF and the comparison statistics"
     )
-    parser.add_argument(
-        "--target", metavar="E,E_ERR,A,A_ERR", help="a target planet to mark: e, its error, a [AU], its error"
-    )
-    parser.add_argument("--target-name", default="target", help="its name in legends")
     parser.add_argument("--labels", metavar="A,B,...", help="names of the ensembles (default: folder names)")
     parser.add_argument(
         "--format",
@@ -46,91 +54,43 @@ def configure(parser) -> None:
         help="single (3.35 in) or double (7.1 in) column; auto: single for one panel",
     )
     parser.add_argument("--out", metavar="FIGDIR", help="output folder (default <first DIR>/figures)")
-    c = parser.add_argument_group("comparison sample (as in scatter-pop compare)")
-    c.add_argument("--a-range", metavar="LOW,HIGH", help="semi-major axis cut [AU], both samples")
-    c.add_argument("--mass-range", metavar="LOW,HIGH", help="m sin i cut [M_J], both samples")
-    c.add_argument(
-        "--rv-survey",
-        metavar="K_MIN,BASELINE",
-        help="keep simulated planets with K >= K_MIN [m/s] and P <= BASELINE [yr]",
-    )
-    c.add_argument("--permutations", default="2000", help="permutations of the AD p-value (default 2000)")
-    add_common_arguments(parser)
-
-
-def _pair(text, flag: str, what: str):
-    if text is None:
-        return None
-    parts = [p.strip() for p in str(text).split(",")]
-    try:
-        values = [float(p) for p in parts]
-    except ValueError:
-        values = []
-    if len(values) != 2 or not all(v == v and abs(v) != float("inf") for v in values):
-        raise InputError(f"{flag} {text!r}: must be two numbers {what}")
-    return values
-
-
-def _options(args):
-    from scatter_pop.survey.comparison import CompareOptions
-    from scatter_pop.survey.cuts import SampleCuts, check_range
-    from scatter_pop.survey.forward_model import RVSurvey
-
-    a = _pair(args.a_range, "--a-range", "LOW,HIGH in AU, e.g. 1,20")
-    m = _pair(args.mass_range, "--mass-range", "LOW,HIGH in M_J, e.g. 0.3,15")
-    k = _pair(args.rv_survey, "--rv-survey", "K_MIN [m/s],BASELINE [yr], e.g. 3,10")
-    if k is not None and (k[0] < 0 or k[1] <= 0):
-        raise InputError(f"--rv-survey {args.rv_survey!r}: K_MIN must be >= 0 m/s and BASELINE > 0 yr")
-    try:
-        permutations = int(args.permutations)
-    except ValueError:
-        permutations = 0
-    if permutations < 1:
-        raise InputError(f"--permutations {args.permutations!r}: must be an integer >= 1")
-    cuts = SampleCuts(
-        a=None if a is None else check_range(a[0], a[1], "--a-range"),
-        mass=None if m is None else check_range(m[0] * MJUP_MSUN, m[1] * MJUP_MSUN, "--mass-range"),
-    )
-    return CompareOptions(
-        cuts=cuts,
-        survey=None if k is None else RVSurvey(k[0], k[1]),
-        energy_tolerance=args.energy_tolerance,
-        include_capped=args.include_capped,
-        permutations=permutations,
-        uncertainty_draws=0,
-        bootstrap_draws=0,
-        references=(),
-        seed=args.seed,
-    )
+    add_target_arguments(parser, windows=False, true_mass=False)
+    add_sample_arguments(parser)
+    parser.add_argument("--permutations", default="2000", help="permutations of the AD p-value (default 2000)")
+    add_statistics_arguments(parser)
+    add_quality_arguments(parser)
 
 
 def execute(args) -> int:
     from scatter_pop.paper.figure_set import FORMATS, write_figure_set
-    from scatter_pop.target.planet import target_point_from_flag
+    from scatter_pop.survey.comparison import CompareOptions
 
     formats = tuple(f.strip().lower() for f in args.format.split(",") if f.strip())
     bad = [f for f in formats if f not in FORMATS]
     if not formats or bad:
-        raise InputError(f"--format {args.format!r}: allowed formats: {', '.join(FORMATS)} (comma-separated)")
-    check_common(args)
-    target = None if args.target is None else target_point_from_flag(args.target, args.target_name)
-    options = _options(args)  # checked even without --observed (then unused)
-    runs = open_runs(args.dirs)
-    if args.labels is not None:
-        labels = [s.strip() for s in args.labels.split(",")]
-        if len(labels) != len(runs) or len(set(labels)) != len(labels) or not all(labels):
-            raise InputError(
-                f"--labels {args.labels!r}: must be {len(runs)} distinct non-empty names, one per DIR, comma-separated"
-            )
-        runs = [(lab, ds) for lab, (_, ds) in zip(labels, runs)]
+        raise InputError(f"--format = {args.format!r}: allowed formats: {', '.join(FORMATS)} (comma-separated)")
+    check_statistics(args)
+    quality = quality_from_args(args)
+    given = any(getattr(args, k) is not None for k in ("target", "e", "e_err", "a", "a_err"))
+    target = target_from_args(args, need_mass=False).point if given else None
+    options = CompareOptions(
+        **sample_options(args),
+        quality=quality,
+        permutations=integer_flag(args.permutations, "--permutations", 1, 10**7),
+        uncertainty_draws=0,
+        bootstrap_draws=0,
+        references=(),
+        seed=args.seed,
+    )  # checked even without --observed (then unused)
+    out = output_folder(args.out)
+    observed = load_observed(args, options.cuts) if args.observed else None
+    runs = open_runs(args.dirs, labels=args.labels, partial=args.partial)
     comparison = None
-    if args.observed:
-        from scatter_pop.survey.catalogue import load_catalogue
+    if observed is not None:
         from scatter_pop.survey.comparison import compare
 
-        observed = load_catalogue(args.observed, cuts=options.cuts)
         comparison = compare([(lab, [ds]) for lab, ds in runs], observed, options)
-    out = Path(args.out) if args.out else Path(args.dirs[0]) / "figures"
+    out = out if out is not None else Path(args.dirs[0]) / "figures"
     result = write_figure_set(
         runs,
         out,
@@ -140,8 +100,7 @@ def execute(args) -> int:
         width=args.width,
         confidence=args.confidence,
         method=args.interval,
-        energy_tolerance=args.energy_tolerance,
-        include_capped=args.include_capped,
+        quality=quality,
     )
     for f in result.figures:
         print(f"{f.name}: " + ", ".join(str(p) for p in f.images + f.tables))

@@ -1,15 +1,26 @@
-"""``scatter-pop run SPEC``: integrate an ensemble into a run folder (resumable)."""
+"""``scatter-pop run SPEC``: integrate an ensemble into a run folder (resumable).
+
+Every flag, the spec, the cluster table and the walltime are checked before a folder is made or a
+worker started; ``--dry-run`` does the same checks, prints the plan and, for a batch cluster, the
+worker job script that would be submitted, and changes nothing.
+"""
 
 from __future__ import annotations
 
+import sys
+from pathlib import Path
+
+from scatter_pop.cli.options import integer_flag, number_flag, output_folder
 from scatter_pop.errors import InputError
 from scatter_pop.spec.reader import load_spec
 
 __all__ = ["configure", "execute"]
 
+ARGUMENT_FLAGS = {"batch_size": "--batch-size", "cluster": "--cluster"}
+
 
 def configure(parser) -> None:
-    parser.add_argument("spec", help="ensemble spec (TOML)")
+    parser.add_argument("spec", metavar="SPEC", help="ensemble spec (TOML)")
     parser.add_argument(
         "--out",
         metavar="DIR",
@@ -17,7 +28,6 @@ def configure(parser) -> None:
     )
     parser.add_argument(
         "--workers",
-        type=int,
         metavar="N",
         help="local worker processes (default: one per core), or for slurm/pbs the number of worker processes to keep",
     )
@@ -35,11 +45,11 @@ def configure(parser) -> None:
     )
     parser.add_argument("--retry-failed", action="store_true", help="compute systems recorded as failed again")
     parser.add_argument(
-        "--dry-run", action="store_true", help="print what would be computed and exit, changing nothing"
+        "--dry-run",
+        action="store_true",
+        help="check everything, print what would be computed (and the job script of a batch cluster), change nothing",
     )
-    parser.add_argument(
-        "--batch-size", type=int, metavar="N", help="systems per task (default: run.batch_size; 0 = automatic)"
-    )
+    parser.add_argument("--batch-size", metavar="N", help="systems per task (default: run.batch_size; 0 = automatic)")
     parser.add_argument(
         "--until-width",
         type=float,
@@ -59,10 +69,9 @@ def configure(parser) -> None:
     )
     parser.add_argument(
         "--progress-every",
-        type=float,
-        default=10.0,
+        default="10",
         metavar="SECONDS",
-        help="seconds between progress lines (default 10)",
+        help="seconds between progress lines in a log (default 10; a terminal shows a bar)",
     )
 
 
@@ -92,35 +101,40 @@ def _until_options(args, spec):
 
 
 def execute(args) -> int:
-    from scatter_pop.ensemble.cluster import apply_overrides, load_cluster_file
+    from scatter_pop.ensemble import progress
+    from scatter_pop.ensemble.cluster import apply_overrides, job_script, load_cluster_file
     from scatter_pop.ensemble.driver import EnsembleRun, default_out
     from scatter_pop.ensemble.stop_signals import stop_signals
+    from scatter_pop.spec.cluster_table import BATCH
 
     spec = load_spec(args.spec)
-    if args.batch_size is not None and args.batch_size < 0:
-        raise InputError(f"--batch-size {args.batch_size}: must be an integer >= 0 (0: automatic)")
-    if not args.progress_every > 0:
-        raise InputError(f"--progress-every {args.progress_every}: must be a number of seconds > 0")
-    if args.scheduler is not None and (args.workers is not None or args.cluster is not None):
-        flag = "--workers" if args.workers is not None else "--cluster"
+    workers = None if args.workers is None else integer_flag(args.workers, "--workers", 1, 100_000)
+    batch_size = None if args.batch_size is None else integer_flag(args.batch_size, "--batch-size", 0, 10_000_000)
+    interval = number_flag(args.progress_every, "--progress-every", "a number of seconds > 0", lambda x: 0 < x <= 1e6)
+    if args.scheduler is not None and (workers is not None or args.cluster is not None):
+        flag = "--workers" if workers is not None else "--cluster"
         raise InputError(
             f"--scheduler {args.scheduler} with {flag}: give one (an existing scheduler brings its own workers)"
         )
+    if args.cluster is not None and not Path(args.cluster).is_file():
+        raise InputError(f"--cluster = {args.cluster!r}: no such file; expected a TOML file with a [cluster] table")
     until = _until_options(args, spec)  # checked before anything is computed
     cluster = load_cluster_file(args.cluster) if args.cluster else spec.cluster
-    resolved = apply_overrides(cluster, args.workers, args.scheduler)  # checks the flags now
-    out = args.out if args.out is not None else default_out(spec)
+    resolved = apply_overrides(cluster, workers, args.scheduler)  # checks the flags now
+    out = output_folder(args.out) if args.out is not None else default_out(spec)
+    log = print if args.verbosity >= 0 else (lambda *_: None)
     run = EnsembleRun(
         spec,
         out,
-        workers=args.workers,
+        workers=workers,
         scheduler=args.scheduler,
         cluster=cluster,
         fresh=args.fresh,
         extend=args.extend,
         retry_failed=args.retry_failed,
-        batch_size=args.batch_size,
-        progress_interval=args.progress_every,
+        batch_size=batch_size,
+        progress_interval=interval,
+        log=log,
     )
     if until is not None and not args.dry_run:
         from scatter_pop.target.campaign import run_until
@@ -134,8 +148,8 @@ def execute(args) -> int:
                 width=args.until_width,
                 cpu_budget=args.cpu_budget,
                 max_systems=args.max_systems,
-                batch_size=args.batch_size,
-                progress_interval=args.progress_every,
+                batch_size=batch_size,
+                progress_interval=interval,
                 **options,
             )
         print(
@@ -144,20 +158,23 @@ def execute(args) -> int:
         return 0
     if args.dry_run:
         plan = run.plan()
-        print(plan.summary())
-        where = (
-            resolved.address
-            if resolved.kind == "address"
-            else (
-                f"{resolved.workers} workers"
-                if resolved.kind == "local" and resolved.workers
-                else "one worker per core"
-                if resolved.kind == "local"
-                else f"{resolved.kind} jobs"
+        if resolved.kind in BATCH:
+            # the walltime check of the real run, then the script dask-jobqueue would submit
+            script = job_script(resolved, longest_task_seconds=run.longest_task_seconds(plan))
+            print(plan.summary())
+            print(f"cluster: {resolved.kind} jobs; each worker job is submitted with this script:")
+            print(script.rstrip("\n"))
+        else:
+            print(plan.summary())
+            where = (
+                resolved.address
+                if resolved.kind == "address"
+                else (f"{resolved.workers} workers" if resolved.workers else "one worker per core")
             )
-        )
-        print(f"cluster: {resolved.kind} ({where}); nothing was computed (--dry-run)")
+            print(f"cluster: {resolved.kind} ({where})")
+        print("nothing was computed (--dry-run)")
         return 0
+    progress.BAR = args.verbosity >= 0 and sys.stderr.isatty()
     # SIGTERM (preemption, scancel) and SIGINT (Ctrl-C) stop the run at a safe point with one line
     # on stderr and exit status 143 / 130 (SystemExit); a second Ctrl-C does not wait for the clean-up
     with stop_signals("scatter-pop run"):

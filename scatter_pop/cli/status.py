@@ -48,7 +48,7 @@ def _further_line(tally: Tally, spec, workers: int) -> str:
 def status_lines(path) -> list[str]:
     """The lines ``scatter-pop status`` prints for the run folder ``path``."""
     folder = RunFolder(path)
-    spec = folder.stored_spec("DIR")
+    spec = folder.stored_spec("dir")
     n = spec.run.systems
     parts, bad = read_parts(folder, spec)
     tally = Tally()
@@ -90,7 +90,9 @@ def status_lines(path) -> list[str]:
         f"CPU time     {format_duration(tally.cpu_seconds)} integrating"
         + (f" (mean {mean:.3g} s per system)" if computed else "")
     )
-    if remaining and computed:
+    if remaining and not running:
+        lines.append("ETA          none: no run is going on (rerun `scatter-pop run` on the spec to continue)")
+    elif remaining and computed:
         workers = state.get("workers") or 1
         lines.append(
             f"ETA          {format_duration(remaining * mean / workers)} on {workers} workers "

@@ -108,9 +108,11 @@ class Path:
 def bench_spec(systems: int, end_time: float, seed: int = 20240611):
     """The benchmark spec (an :class:`~scatter_pop.spec.reader.EnsembleSpec`) with ``end_time`` in yr."""
     if systems < 2:
-        raise InputError(f"--systems {systems}: must be >= 2 (the two-sample tests need two values)")
+        raise InputError(
+            f"systems = {systems}: must be >= 2 (the two-sample tests need two values)", arguments=("systems",)
+        )
     if not (end_time > 0 and math.isfinite(end_time)):
-        raise InputError(f"--end-time {end_time!r}: must be a positive number of years")
+        raise InputError(f"end_time = {end_time!r}: must be a positive number of years", arguments=("end_time",))
     return parse_spec(BENCH_SPEC.format(seed=seed, systems=systems, end_time=float(end_time)), "<bench>")
 
 
@@ -131,7 +133,9 @@ def make_paths(spec, names=None) -> list[Path]:
         names = ["default" if n == base.integrator else n for n in names]  # the default's integrator
         unknown = [n for n in names if n not in known]
         if unknown:
-            raise InputError(f"--paths {','.join(unknown)}: unknown; choose from {', '.join(known)}")
+            raise InputError(
+                f"paths = {','.join(unknown)}: unknown; choose from {', '.join(known)}", arguments=("paths",)
+            )
         paths = [p for p in paths if p.label in set(names) | {"reference"}]
     return paths
 
@@ -393,11 +397,11 @@ def run_benchmark(
         if value is not None:
             mode[key] = value
     if mode["workers"] < 0:
-        raise InputError(f"--workers {mode['workers']}: must be >= 0 (0: in this process)")
+        raise InputError(f"workers = {mode['workers']}: must be >= 0 (0: in this process)", arguments=("workers",))
     if mode["permutations"] < 1:
-        raise InputError(f"--permutations {mode['permutations']}: must be >= 1")
+        raise InputError(f"permutations = {mode['permutations']}: must be >= 1", arguments=("permutations",))
     if json_path is not None and not os.path.isdir(os.path.dirname(os.path.abspath(json_path))):
-        raise InputError(f"--json {json_path}: its folder does not exist")
+        raise InputError(f"json_path = {json_path}: its folder does not exist", arguments=("json_path",))
     spec = bench_spec(mode["systems"], mode["end_time"], seed)
     chosen = make_paths(spec, paths)
     log(

@@ -128,13 +128,14 @@ class EnsembleRun:
         self.fresh, self.extend, self.retry_failed = fresh, extend, retry_failed
         self.batch_size = spec.run.batch_size if batch_size is None else batch_size
         if self.batch_size < 0:
-            raise InputError(f"--batch-size {self.batch_size}: must be >= 0 (0: automatic)")
+            raise InputError(f"batch_size = {self.batch_size}: must be >= 0 (0: automatic)", arguments=("batch_size",))
         self.out, self.progress_interval = Path(out), progress_interval
         self.timings = Timings()
 
-    def plan(self) -> Plan:
-        """What :meth:`run` would do, changing nothing on disk (``--dry-run``)."""
-        folder = prepare_folder(self.spec, self.out, fresh=self.fresh, dry_run=True, log=self.log)
+    def plan(self, log=None) -> Plan:
+        """What :meth:`run` would do, changing nothing on disk (a dry run)."""
+        log = self.log if log is None else log
+        folder = prepare_folder(self.spec, self.out, fresh=self.fresh, dry_run=True, log=log)
         if self.fresh and folder.is_run_folder():  # would have been moved aside
             return Plan(self.spec, folder, [], self.batch_size, self.extend, self.retry_failed)
         return make_plan(
@@ -144,8 +145,26 @@ class EnsembleRun:
             retry_failed=self.retry_failed,
             batch_size=self.batch_size,
             read_only=True,
-            log=self.log,
+            log=log,
         )
+
+    def cluster_config(self):
+        """The cluster the run would use (the ``cluster`` argument, else the spec's)."""
+        return self.cluster if self.cluster is not None else self.spec.cluster
+
+    def longest_task_seconds(self, plan: Plan) -> float:
+        """Longest expected task of ``plan``: its widest batch at the wall-clock cap per system, s."""
+        widest = max([plan.batch_size, 1] + [len(t.indices) for t in plan.redo])
+        return self.spec.integration.wall_seconds_max * widest
+
+    def check_cluster(self, plan: Plan | None = None) -> None:
+        """Refuse now, before any folder is made, a walltime :func:`connect` would refuse later."""
+        from scatter_pop.spec.cluster_table import BATCH, check_walltime
+
+        config = self.cluster_config()
+        if self.client is None and self.scheduler is None and config.kind in BATCH:
+            plan = plan if plan is not None else self.plan(log=lambda *_: None)
+            check_walltime(config.walltime, self.longest_task_seconds(plan))
 
     def run(self) -> xr.Dataset:
         """Compute what the folder lacks, gather ensemble.nc and return it (loaded)."""
@@ -154,6 +173,7 @@ class EnsembleRun:
         # A stop signal (SIGTERM inside connect(); SIGINT too under stop_signals.stop_signals, as in
         # `scatter-pop run`) is acted upon only between whole steps, never while a part file, a
         # merged part or ensemble.nc is being written
+        self.check_cluster()
         with deferred_stop():
             folder = prepare_folder(self.spec, self.out, fresh=self.fresh, log=self.log)
             with folder.lock():
@@ -189,9 +209,8 @@ class EnsembleRun:
         from scatter_pop.ensemble.cluster import connect
         from scatter_pop.ensemble.stop_signals import deferred_stop
 
-        config = self.cluster if self.cluster is not None else self.spec.cluster
-        widest = max([plan.batch_size, 1] + [len(t.indices) for t in plan.redo])
-        longest = self.spec.integration.wall_seconds_max * widest
+        config = self.cluster_config()
+        longest = self.longest_task_seconds(plan)
         t0 = time.monotonic()
         # a stop signal is acted upon only between whole steps of the driver (see _finished), never
         # in the middle of writing a part file

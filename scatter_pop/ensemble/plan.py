@@ -219,7 +219,7 @@ class Plan:
             f"{' and '.join(words)}; batch size {self.batch_size or 'automatic'}"
         )
         if self.kept_capped:
-            text += f"; {self.kept_capped} capped systems kept as they are (continue them with --extend)"
+            text += f"; {self.kept_capped} capped systems kept as they are (continue them with extend=True, the run's --extend)"
         return text
 
 

@@ -1,9 +1,12 @@
-"""Outcome tallies and the plain-text progress line of a running ensemble.
+"""Outcome tallies and the progress of a running ensemble: a bar on a terminal, plain lines in logs.
 
-The progress line is one ordinary line of text per report (no carriage returns, no colour), so it
-reads the same in a terminal and in a batch system's log file::
+In a batch system's log file (or whenever :data:`BAR` is off, the library default) the progress is
+one ordinary line of text per report (no carriage returns, no colour)::
 
     [scatter-pop] 37/100 systems (37.0 %) | ejected 21 merged 4 star 2 | capped 1 failed 0 | 0:01:12 elapsed, ETA 0:02:03
+
+On a terminal the command line turns :data:`BAR` on and the same counts ride on a tqdm bar with its
+rate and ETA (on standard error, so that standard output keeps only results).
 """
 
 from __future__ import annotations
@@ -17,7 +20,10 @@ import xarray as xr
 
 from scatter_pop.engine.outcome import EndReason, Fate, Settlement
 
-__all__ = ["Tally", "Progress", "format_duration"]
+__all__ = ["Tally", "Progress", "format_duration", "BAR", "VERBOSITY"]
+
+BAR = False  # draw a tqdm bar instead of plain lines (the command line sets it on a terminal)
+VERBOSITY = 0  # -1 quiet, 0 normal, 1 verbose (set by the command line)
 
 
 def format_duration(seconds: float) -> str:
@@ -107,6 +113,13 @@ class Progress:
         self.at_start = tally.systems
         self.last_print = -np.inf
         self.last_line_systems = -1
+        self.bar = None
+        if BAR:
+            from tqdm import tqdm
+
+            self.bar = tqdm(
+                total=total, initial=tally.systems, unit="system", dynamic_ncols=True, file=sys.stderr, leave=True
+            )
 
     def eta_seconds(self) -> float:
         """Remaining time extrapolated from this session's rate, s (NaN before any result)."""
@@ -127,6 +140,16 @@ class Progress:
         )
 
     def update(self, force: bool = False) -> None:
+        if self.bar is not None:
+            t = self.tally
+            self.bar.n = t.systems
+            self.bar.set_postfix_str(
+                f"{t.outcome_words()} | capped {len(t.capped)} failed {len(t.failed)}", refresh=False
+            )
+            self.bar.refresh()
+            if force:
+                self.bar.close()
+            return
         now = time.monotonic()
         if (force and self.tally.systems != self.last_line_systems) or now - self.last_print >= self.interval:
             self.last_print, self.last_line_systems = now, self.tally.systems

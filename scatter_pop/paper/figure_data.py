@@ -21,7 +21,7 @@ from pathlib import Path
 import numpy as np
 import xarray as xr
 
-from scatter_pop.store.schema import ENERGY_TOLERANCE_DEFAULT, quality_mask, survivor_mask
+from scatter_pop.store.schema import QualityCuts, quality_mask, survivor_mask
 from scatter_pop.target.architecture import mass_ratio
 from scatter_pop.target.branches import BRANCHES, branching_ratios, planet_branch
 
@@ -101,16 +101,12 @@ def _concat(tables: list[Table]) -> Table:
     return Table({k: np.concatenate([t.columns[k] for t in tables]) for k in tables[0].columns})
 
 
-def bound_survivors(
-    ds: xr.Dataset, *, energy_tolerance: float = ENERGY_TOLERANCE_DEFAULT, include_capped: bool = False
-) -> np.ndarray:
+def bound_survivors(ds: xr.Dataset, quality: QualityCuts = QualityCuts()) -> np.ndarray:
     """Mask (system × planet) of bound survivors of the systems used."""
-    return np.asarray(
-        survivor_mask(ds, energy_tolerance=energy_tolerance, include_capped=include_capped).values, dtype=bool
-    )
+    return np.asarray(survivor_mask(ds, quality).values, dtype=bool)
 
 
-def e_histogram_by_branch(runs, *, bins=E_BINS, **quality) -> Table:
+def e_histogram_by_branch(runs, *, bins=E_BINS, quality: QualityCuts = QualityCuts()) -> Table:
     """Counts of survivors' final e per bin, per outcome branch, per ensemble.
 
     Parameters
@@ -119,8 +115,8 @@ def e_histogram_by_branch(runs, *, bins=E_BINS, **quality) -> Table:
         Label and dataset of each ensemble.
     bins : array_like
         Bin edges of e (dimensionless).
-    **quality
-        ``energy_tolerance``, ``include_capped`` (see :func:`bound_survivors`).
+    quality : QualityCuts
+        Which systems are used (see :func:`bound_survivors`).
 
     Returns
     -------
@@ -130,7 +126,7 @@ def e_histogram_by_branch(runs, *, bins=E_BINS, **quality) -> Table:
     bins = np.asarray(bins, dtype=float)
     out = []
     for label, ds in runs:
-        keep = bound_survivors(ds, **quality)
+        keep = bound_survivors(ds, quality)
         e, branch = ds["e_final"].values[keep], planet_branch(ds)[keep]
         for b in BRANCHES:
             counts, _ = np.histogram(e[branch == b], bins=bins)
@@ -201,11 +197,11 @@ def comparison_stats_table(rows) -> Table:
     )
 
 
-def a_e_points(runs, **quality) -> Table:
+def a_e_points(runs, quality: QualityCuts = QualityCuts()) -> Table:
     """Survivors in the a–e plane: ``ensemble``, ``branch``, ``a_au``, ``e``, ``q_au``."""
     out = []
     for label, ds in runs:
-        keep = bound_survivors(ds, **quality)
+        keep = bound_survivors(ds, quality)
         a, e = ds["a_final"].values[keep], ds["e_final"].values[keep]
         out.append(_table(ensemble=[label] * a.size, branch=planet_branch(ds)[keep], a_au=a, e=e, q_au=a * (1.0 - e)))
     return _concat(out)
@@ -250,7 +246,9 @@ def target_table(target) -> Table:
     return _table(name=[target.name], a_au=[target.a], a_err_au=[target.a_err], e=[target.e], e_err=[target.e_err])
 
 
-def branching_table(runs, *, confidence: float = 0.95, method: str = "exact", **quality) -> Table:
+def branching_table(
+    runs, *, confidence: float = 0.95, method: str = "exact", quality: QualityCuts = QualityCuts()
+) -> Table:
     """Fraction of systems in each branch with binomial intervals.
 
     Returns
@@ -260,7 +258,7 @@ def branching_table(runs, *, confidence: float = 0.95, method: str = "exact", **
     """
     out = []
     for label, ds in runs:
-        rows = branching_ratios(ds, mask=quality_mask(ds, **quality), confidence=confidence, method=method)
+        rows = branching_ratios(ds, mask=quality_mask(ds, quality), confidence=confidence, method=method)
         out.append(
             _table(
                 ensemble=[label] * len(rows),
@@ -275,7 +273,7 @@ def branching_table(runs, *, confidence: float = 0.95, method: str = "exact", **
     return _concat(out)
 
 
-def instability_cdf(runs, **quality) -> Table:
+def instability_cdf(runs, quality: QualityCuts = QualityCuts()) -> Table:
     """CDF of the time of the first close encounter, over all systems used.
 
     Systems that never had one are in the denominator but not in the curve,
@@ -290,7 +288,7 @@ def instability_cdf(runs, **quality) -> Table:
     """
     out = []
     for label, ds in runs:
-        use = np.asarray(quality_mask(ds, **quality).values, dtype=bool)
+        use = np.asarray(quality_mask(ds, quality).values, dtype=bool)
         t = ds["t_first_encounter"].values[use].astype(float)
         n = int(use.sum())
         x = np.sort(t[np.isfinite(t)])
@@ -310,7 +308,7 @@ def instability_cdf(runs, **quality) -> Table:
     return _concat(out)
 
 
-def e_vs_mass_ratio(runs, **quality) -> Table:
+def e_vs_mass_ratio(runs, quality: QualityCuts = QualityCuts()) -> Table:
     """Survivors' final e against their system's initial mass ratio m_min/m_max.
 
     Returns
@@ -320,7 +318,7 @@ def e_vs_mass_ratio(runs, **quality) -> Table:
     """
     out = []
     for label, ds in runs:
-        keep = bound_survivors(ds, **quality)
+        keep = bound_survivors(ds, quality)
         q = np.repeat(mass_ratio(ds)[:, None], ds.sizes["planet"], axis=1)[keep]
         out.append(
             _table(

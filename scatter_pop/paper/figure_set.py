@@ -30,7 +30,7 @@ import scatter_pop.paper.drawing as fg
 import scatter_pop.paper.figure_data as fd
 from scatter_pop.errors import InputError
 from scatter_pop.paper.latex_tables import latex_table
-from scatter_pop.store.schema import ENERGY_TOLERANCE_DEFAULT
+from scatter_pop.store.schema import QualityCuts
 
 __all__ = ["FIGURE_NAMES", "FORMATS", "WIDTHS", "FigureFiles", "FigureSet", "write_figure_set"]
 
@@ -109,8 +109,7 @@ def write_figure_set(
     width: str = "auto",
     confidence: float = 0.95,
     method: str = "exact",
-    energy_tolerance: float = ENERGY_TOLERANCE_DEFAULT,
-    include_capped: bool = False,
+    quality: QualityCuts = QualityCuts(),
 ) -> FigureSet:
     """Write the figure set, its CSV tables and the LaTeX table into ``out``.
 
@@ -133,23 +132,22 @@ def write_figure_set(
         for one panel, double for several.
     confidence, method
         Binomial intervals of the branching ratios.
-    energy_tolerance, include_capped
+    quality : QualityCuts
         Which systems are used (:func:`scatter_pop.store.schema.quality_mask`).
     """
     for f in formats:
         if f not in FORMATS:
-            raise InputError(f"--format {f!r}: allowed formats: {', '.join(FORMATS)}")
+            raise InputError(f"formats: {f!r}: allowed formats: {', '.join(FORMATS)}", arguments=("formats",))
     if width not in WIDTHS:
-        raise InputError(f"--width {width!r}: allowed: {', '.join(WIDTHS)}")
+        raise InputError(f"width = {width!r}: allowed: {', '.join(WIDTHS)}", arguments=("width",))
     runs = list(runs)
     out = Path(out)
     out.mkdir(parents=True, exist_ok=True)
-    quality = dict(energy_tolerance=energy_tolerance, include_capped=include_capped)
     labels = [label for label, _ in runs]
     target_e = None if target is None else target.e
     written = []
     with fg.style():
-        hist = fd.e_histogram_by_branch(runs, **quality)
+        hist = fd.e_histogram_by_branch(runs, quality=quality)
         written.append(
             _per_ensemble(
                 out,
@@ -166,14 +164,14 @@ def write_figure_set(
             cdf = fd.e_cdf_table([(r.sample.label, r.sample.e) for r in comparison.rows], comparison.observed.e)
             stats = fd.comparison_stats_table([(r.sample.label, r.test) for r in comparison.rows])
         else:
-            points = fd.a_e_points(runs, **quality)
+            points = fd.a_e_points(runs, quality=quality)
             cdf = fd.e_cdf_table([(lab, points.where(ensemble=lab)["e"]) for lab in labels])
             stats = None
         fig, axes = fg.new_figure(_one_panel_width(width), PANEL_HEIGHT_IN + 0.3)
         fg.draw_e_cdf(axes[0, 0], cdf, stats, target_e=target_e)
         written.append(_write(out, "e_cdf", fig, {"": cdf, **({"stats": stats} if stats else {})}, formats))
 
-        points = fd.a_e_points(runs, **quality)
+        points = fd.a_e_points(runs, quality=quality)
         lines = fd.pericentre_lines(*fd.survivors_a_range(points))
         ttab = fd.target_table(target) if target is not None else None
         tables = {"": points, "lines": lines, **({"target": ttab} if ttab is not None else {})}
@@ -189,17 +187,17 @@ def write_figure_set(
             )
         )
 
-        branching = fd.branching_table(runs, confidence=confidence, method=method, **quality)
+        branching = fd.branching_table(runs, confidence=confidence, method=method, quality=quality)
         fig, axes = fg.new_figure(_one_panel_width(width), PANEL_HEIGHT_IN)
         fg.draw_branching(axes[0, 0], branching)
         written.append(_write(out, "branching_ratios", fig, {"": branching}, formats))
 
-        inst = fd.instability_cdf(runs, **quality)
+        inst = fd.instability_cdf(runs, quality=quality)
         fig, axes = fg.new_figure(_one_panel_width(width), PANEL_HEIGHT_IN)
         fg.draw_instability(axes[0, 0], inst)
         written.append(_write(out, "instability_times", fig, {"": inst}, formats))
 
-        emr = fd.e_vs_mass_ratio(runs, **quality)
+        emr = fd.e_vs_mass_ratio(runs, quality=quality)
         final = fd.Table({k: v[emr["branch"] != "unsettled"] for k, v in emr.columns.items()}) if len(emr) else emr
         med = fd.binned_median(final, "mass_ratio", "e", MASS_RATIO_EDGES)  # outcomes only, not snapshots
         ratios = emr["mass_ratio"] if len(emr) else np.array([])

@@ -285,9 +285,13 @@ def load_cluster_file(path) -> ClusterConfig:
     """Read a cluster file: a TOML file whose top level is the ``[cluster]`` table."""
     path = Path(path)
     try:
-        table = tomllib.loads(path.read_text())
+        table = tomllib.loads(path.read_bytes().decode("utf-8-sig"))
     except OSError as exc:
-        raise InputError(f"--cluster = {toml_repr(str(path))}: cannot read ({exc.strerror})") from None
+        raise InputError(f"cluster file {toml_repr(str(path))}: cannot read ({exc.strerror})") from None
+    except UnicodeDecodeError as exc:
+        raise InputError(
+            f"cluster file {toml_repr(str(path))}: byte {exc.start} is not UTF-8; save the file as UTF-8"
+        ) from None
     except tomllib.TOMLDecodeError as exc:
         raise InputError(f"{path}: not valid TOML: {exc}") from None
     if set(table) == {"cluster"} and isinstance(table["cluster"], dict):
@@ -296,22 +300,25 @@ def load_cluster_file(path) -> ClusterConfig:
 
 
 def apply_overrides(config: ClusterConfig, workers: int | None = None, scheduler: str | None = None) -> ClusterConfig:
-    """The config after ``--workers N`` and ``--scheduler ADDRESS`` from the command line."""
+    """The config after the ``workers`` and ``scheduler`` overrides (InputError names them)."""
     if scheduler is not None:
         ok, _ = _address(scheduler)
         if not ok:
-            raise InputError(f"--scheduler = {toml_repr(scheduler)}: allowed: " + _KEYS["address"][2])
+            raise InputError(
+                f"scheduler = {toml_repr(scheduler)}: allowed: " + _KEYS["address"][2], arguments=("scheduler",)
+            )
         return ClusterConfig(kind="address", address=scheduler)
     if workers is None:
         return config
     if isinstance(workers, bool) or not isinstance(workers, int) or workers < 1:
-        raise InputError(f"--workers = {toml_repr(workers)}: allowed: an integer >= 1")
+        raise InputError(f"workers = {toml_repr(workers)}: allowed: an integer >= 1", arguments=("workers",))
     if config.kind == "local":
         return replace(config, workers=workers)
     if config.kind in BATCH:  # N worker processes = ceil(N / cores) jobs, kept running
         n = -(-workers // config.cores)
         return replace(config, minimum_jobs=n, maximum_jobs=n)
     raise InputError(
-        f"--workers = {workers}: applies to kind local, slurm or pbs; an existing "
-        'scheduler (kind = "address") has the workers it has'
+        f"workers = {workers}: applies to kind local, slurm or pbs; an existing "
+        'scheduler (kind = "address") has the workers it has',
+        arguments=("workers",),
     )

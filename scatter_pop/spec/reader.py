@@ -358,8 +358,10 @@ def _integration(table) -> IntegrationSpec:
             "integration.end_time / integration.end_orbits: give exactly one "
             "(end_time in yr, or end_orbits in initial inner orbits)"
         )
-    end_time = s.get("end_time", float, check=_positive, allowed="in yr, > 0")
-    end_orbits = s.get("end_orbits", float, check=_positive, allowed="in initial inner orbits, > 0")
+    end_time = s.get("end_time", float, check=lambda x: 0 < x <= 1e11, allowed="in yr, > 0 and <= 1e11")
+    end_orbits = s.get(
+        "end_orbits", float, check=lambda x: 0 < x <= 1e12, allowed="in initial inner orbits, > 0 and <= 1e12"
+    )
     spec = IntegrationSpec(
         integrator=integrator,
         end_time=end_time,
@@ -373,7 +375,11 @@ def _integration(table) -> IntegrationSpec:
         r_crit_hill=s.get("r_crit_hill", float, d.r_crit_hill, check=_positive, allowed="> 0 (Hill radii)"),
         ejection_distance=s.get("ejection_distance", float, d.ejection_distance, check=_positive, allowed="in AU, > 0"),
         wall_seconds_max=s.get(
-            "wall_seconds_max", float, d.wall_seconds_max, check=_positive, allowed="in seconds, > 0"
+            "wall_seconds_max",
+            float,
+            d.wall_seconds_max,
+            check=lambda x: 0 < x <= 1e9,
+            allowed="in seconds, > 0 and <= 1e9",
         ),
         check_orbits=s.get(
             "check_orbits", float, d.check_orbits, check=_positive, allowed="in initial inner orbits, > 0"
@@ -403,8 +409,48 @@ def _outcomes(table) -> OutcomeSpec:
 SECTIONS = ("run", "star", "planets", "integration", "outcomes", "cluster")
 
 
+# --------------------------------------------------------------------------- checks across sections
+def _widest_layout(star: StarSpec, planets: PlanetsSpec) -> tuple[float, ...]:
+    """Initial semi-major axes of the widest system the spec can draw (AU): every mass and spacing at
+    its upper end (a_{i+1}/a_i grows with both), by the engine's own spacing rule."""
+    if planets.a_list is not None:
+        return planets.a_list
+    from scatter_pop.engine.initial_conditions import spaced_semi_major_axes  # the one spacing rule
+
+    return spaced_semi_major_axes(
+        planets.a_inner, [planets.spacing.high] * (planets.count - 1), [m.high for m in planets.masses], star.mass
+    )
+
+
+def _check_spacing_fits(star: StarSpec, planets: PlanetsSpec) -> None:
+    """planets.spacing: every pair must fit (Delta k / 2 < 1), else the orbits cannot be placed."""
+    _widest_layout(star, planets)  # raises InputError naming planets.spacing
+
+
+def _check_inside_ejection_distance(star: StarSpec, planets: PlanetsSpec, integration: IntegrationSpec) -> None:
+    """integration.ejection_distance must exceed the outermost initial orbit of every system."""
+    widest = _widest_layout(star, planets)[-1]
+    if widest >= integration.ejection_distance:
+        how = "the outermost initial semi-major axis" if planets.a_list else "the widest outermost initial orbit"
+        raise InputError(
+            f"integration.ejection_distance = {integration.ejection_distance!r}: must exceed {how} "
+            f"({widest:.6g} AU, with the largest masses and spacing); raise it or narrow planets.spacing / planets.a"
+        )
+
+
+def _check_star_inside_orbits(star: StarSpec, planets: PlanetsSpec) -> None:
+    """star.radius must be smaller than the innermost initial semi-major axis."""
+    inner = planets.a_list[0] if planets.a_list is not None else planets.a_inner
+    if star.radius >= inner:
+        raise InputError(
+            f"star.radius = {star.radius / R_SUN_AU:g}: the star ({star.radius:.4g} AU) reaches the innermost "
+            f"initial orbit ({inner:g} AU); allowed: a radius in R_sun below {inner / R_SUN_AU:.4g}"
+        )
+
+
 def parse_spec(text: str, source: str = "<spec>") -> EnsembleSpec:
-    """Parse and check a spec given as TOML text."""
+    """Parse and check a spec given as TOML text (a leading byte-order mark is ignored)."""
+    text = text.removeprefix("\ufeff")
     try:
         doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
@@ -414,11 +460,9 @@ def parse_spec(text: str, source: str = "<spec>") -> EnsembleSpec:
             raise InputError(f"[{key}]: unknown section; allowed sections: {', '.join(SECTIONS)}")
     run, star, planets = _run(doc.get("run")), _star(doc.get("star")), _planets(doc.get("planets"))
     integration, outcomes = _integration(doc.get("integration")), _outcomes(doc.get("outcomes"))
-    if planets.a_list is not None and planets.a_list[-1] >= integration.ejection_distance:
-        raise InputError(
-            f"integration.ejection_distance = {integration.ejection_distance!r}: must exceed the "
-            f"outermost initial semi-major axis ({planets.a_list[-1]!r} AU)"
-        )
+    _check_spacing_fits(star, planets)
+    _check_inside_ejection_distance(star, planets, integration)
+    _check_star_inside_orbits(star, planets)
     cluster_table = doc.get("cluster", {})
     if not isinstance(cluster_table, dict):
         raise InputError(f"cluster = {toml_repr(cluster_table)}: must be a table [cluster]")
@@ -458,9 +502,13 @@ def load_spec(path) -> EnsembleSpec:
     """Read and check a spec file (TOML)."""
     path = Path(path)
     try:
-        text = path.read_text(encoding="utf-8")
+        text = path.read_bytes().decode("utf-8-sig")  # a byte-order mark (editor exports) is accepted
     except FileNotFoundError:
         raise InputError(f"spec file {str(path)!r} does not exist") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise InputError(f"spec file {str(path)!r} cannot be read: {exc}") from None
+    except IsADirectoryError:
+        raise InputError(f"spec file {str(path)!r} is a folder; expected a TOML file") from None
+    except UnicodeDecodeError as exc:
+        raise InputError(f"spec file {str(path)!r}: byte {exc.start} is not UTF-8; save the file as UTF-8") from None
+    except OSError as exc:
+        raise InputError(f"spec file {str(path)!r} cannot be read ({exc.strerror})") from None
     return parse_spec(text, source=str(path))

@@ -45,6 +45,11 @@ def atomic_write_netcdf(ds: xr.Dataset, path: Path, encoding: dict | None = None
     """
     import dask
 
+    from scatter_pop.store.schema import netcdf_encoding
+
+    fills = netcdf_encoding(ds)
+    encoding = {name: {**fills.get(name, {}), **(encoding or {}).get(name, {})} for name in {*fills, *(encoding or {})}}
+
     def write(tmp):
         with dask.config.set(scheduler="synchronous"):
             ds.to_netcdf(tmp, engine="netcdf4", format="NETCDF4", encoding=encoding)

@@ -48,8 +48,14 @@ class Part:
 
 def load(path) -> xr.Dataset:
     """A netCDF file read completely into memory (netCDF4 engine), the file closed."""
-    with xr.open_dataset(path, engine="netcdf4") as ds:
-        return ds.load()
+    # codes as stored: int8 variables keep their dtype (their _FillValue -1 is a value the schema
+    # defines), instead of being turned into floats with NaN by xarray's CF masking
+    with xr.open_dataset(path, engine="netcdf4", mask_and_scale=False) as ds:
+        ds = ds.load()
+    for var in ds.variables.values():
+        var.attrs.pop("_FillValue", None)
+        var.encoding.pop("_FillValue", None)
+    return ds
 
 
 def _problem(data: xr.Dataset, first: int, last: int, digest: str, n_planets: int) -> str | None:

@@ -34,7 +34,7 @@ from scatter_pop.errors import InputError
 from scatter_pop.spec.reader import EnsembleSpec, parse_spec
 from scatter_pop.store.atomic import atomic_write_netcdf, atomic_write_text
 from scatter_pop.store.parts import Part, drop_contained, load, part_name, scan, stack
-from scatter_pop.store.schema import SETTLEMENT_RULE, validate_dataset
+from scatter_pop.store.schema import LENGTH_UNITS, MASS_UNITS, SETTLEMENT_RULE, validate_dataset
 
 __all__ = [
     "RunFolder",
@@ -79,10 +79,12 @@ def versions() -> dict[str, str]:
     import netCDF4
     import rebound
 
-    from scatter_pop import __version__
+    from scatter_pop.provenance import package_version, source_commit
 
+    commit = source_commit()
     return {
-        "scatter_pop_version": __version__,
+        "scatter_pop_version": package_version(),
+        **({"scatter_pop_commit": commit} if commit else {}),
         "rebound_version": rebound.__version__,
         "heyoka_version": _package_version("heyoka"),  # read without importing it (LLVM loads in ~1 s)
         "numpy_version": np.__version__,
@@ -113,10 +115,12 @@ class RunFolder:
     def is_run_folder(self) -> bool:
         return self.spec_path.is_file()
 
-    def stored_spec(self, flag: str = "DIR") -> EnsembleSpec:
-        """The spec kept in the folder; InputError if it is not a run folder."""
+    def stored_spec(self, flag: str = "path") -> EnsembleSpec:
+        """The spec kept in the folder; InputError (naming the argument ``flag``) if it is not a run folder."""
         if not self.is_run_folder():
-            raise InputError(f"{flag} {str(self.path)!r}: not a scatter-pop run folder (no {SPEC_FILE})")
+            raise InputError(
+                f"{flag} = {str(self.path)!r}: not a scatter-pop run folder (no {SPEC_FILE})", arguments=(flag,)
+            )
         try:
             text = self.spec_path.read_text(encoding="utf-8")
         except (OSError, UnicodeDecodeError) as exc:
@@ -150,8 +154,9 @@ class RunFolder:
                 fh.seek(0)
                 who = fh.read().strip() or "unknown"
                 raise InputError(
-                    f"--out {str(self.path)!r}: another scatter-pop run is using this folder "
-                    f"({who}); wait for it to end or choose another --out"
+                    f"out = {str(self.path)!r}: another scatter-pop run is using this folder "
+                    f"({who}); wait for it to end or choose another out",
+                    arguments=("out",),
                 ) from None
             fh.seek(0)
             fh.truncate()
@@ -260,16 +265,24 @@ class RunFolder:
 
     def global_attrs(self, spec: EnsembleSpec, systems: int, conventions: str) -> dict:
         """Global attributes of ensemble.nc (CF / ACDD names where one exists)."""
+        from scatter_pop.provenance import package_version
+
+        now = _utc_now()
         return {
             "Conventions": conventions,
             "title": f"scatter_pop ensemble {spec.run.name!r}: outcomes of planet-planet scattering",
             "source": "scatter_pop (REBOUND N-body integrations)",
-            "date_created": _utc_now(),
+            "date_created": now,
+            "history": f"{now} scatter_pop {package_version()}: run_ensemble of spec {spec.source!r} "
+            f"(identity {spec.digest()[:16]}), {systems} systems gathered into {ENSEMBLE_FILE}",
             "run_name": spec.run.name,
             "run_seed": np.uint64(spec.run.seed),
             "systems": np.int64(systems),
             "integrator": spec.integration.integrator,
             "star_mass": float(spec.star.mass),  # M_sun
+            "star_mass_units": MASS_UNITS,  # nominal solar masses (netCDF global attributes have no units of their own)
+            "star_radius": float(spec.star.radius),  # au
+            "star_radius_units": LENGTH_UNITS,
             "spec_digest": spec.digest(),
             "spec_toml": spec.text,
             "settlement_rule": SETTLEMENT_RULE,
@@ -342,43 +355,48 @@ def prepare_folder(spec: EnsembleSpec, out, *, fresh: bool = False, dry_run: boo
     """
     folder = RunFolder(out)
     if folder.path.exists() and not folder.path.is_dir():
-        raise InputError(f"--out {str(folder.path)!r}: exists and is not a folder")
+        raise InputError(f"out = {str(folder.path)!r}: exists and is not a folder", arguments=("out",))
     if not folder.path.is_dir() or not any(p.name != LOCK_FILE for p in folder.path.iterdir()):
         return folder
     if not folder.is_run_folder():
         raise InputError(
-            f"--out {str(folder.path)!r}: a non-empty folder that is not a scatter-pop run "
-            f"folder (no {SPEC_FILE}); choose another --out"
+            f"out = {str(folder.path)!r}: a non-empty folder that is not a scatter-pop run "
+            f"folder (no {SPEC_FILE}); choose another out",
+            arguments=("out",),
         )
     try:
-        old = folder.stored_spec("--out")
+        old = folder.stored_spec("out")
     except InputError:
         if not fresh:
             raise InputError(
-                f"--out {str(folder.path)!r}: its {SPEC_FILE} is not a valid spec; "
-                "rerun with --fresh to move the old folder aside"
+                f"out = {str(folder.path)!r}: its {SPEC_FILE} is not a valid spec; "
+                "rerun with fresh=True to move the old folder aside",
+                arguments=("out", "fresh"),
             ) from None
         old = None
     changed = _identity_differences(old, spec) if old is not None else ["(unreadable)"]
     if changed and not fresh:
         raise InputError(
-            f"--out {str(folder.path)!r}: holds a run of a different spec (changed: "
+            f"out = {str(folder.path)!r}: holds a run of a different spec (changed: "
             f"{'; '.join(changed[:3])}{'; ...' if len(changed) > 3 else ''}); only run.name, "
             "run.systems, run.batch_size, integration.wall_seconds_max, [cluster] and a raised "
-            "integration.end_time / end_orbits may change in a run folder; rerun with --fresh to move "
-            "the old run aside, or choose another --out"
+            "integration.end_time / end_orbits may change in a run folder; rerun with fresh=True to move "
+            "the old run aside, or choose another out",
+            arguments=("out", "fresh"),
         )
     if old is not None and not fresh:
-        end_time_change(old, spec, f"--out {str(folder.path)!r}")
+        end_time_change(old, spec, f"run folder {str(folder.path)!r}")
     if fresh:
         if folder.locked_by_other():
-            raise InputError(f"--fresh: {str(folder.path)!r} is in use by a running scatter-pop run")
+            raise InputError(
+                f"fresh=True: {str(folder.path)!r} is in use by a running scatter-pop run", arguments=("fresh",)
+            )
         aside = folder.path.with_name(f"{folder.path.name}.replaced-{_dt.datetime.now(_dt.UTC):%Y%m%dT%H%M%SZ}")
         if dry_run:
-            log(f"--fresh: would move {folder.path} to {aside}")
+            log(f"fresh start: would move {folder.path} to {aside}")
         else:
             os.replace(folder.path, aside)
-            log(f"--fresh: moved the old run folder to {aside}")
+            log(f"fresh start: moved the old run folder to {aside}")
     return folder
 
 
@@ -407,7 +425,8 @@ def open_ensemble(path, *, partial: bool = False) -> xr.Dataset:
     if not partial or not parts:
         raise InputError(
             f"{str(p)!r}: run incomplete ({done}/{spec.run.systems} systems); rerun "
-            "`scatter-pop run` on its spec to finish it, or open it with partial=True"
+            "`scatter-pop run` on its spec to finish it, or read what is finished with partial=True",
+            arguments=("partial",),
         )
     return folder.gather(parts, spec, write=False)
 

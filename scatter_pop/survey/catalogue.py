@@ -24,6 +24,7 @@ Rules
 from __future__ import annotations
 
 import csv
+import io
 from dataclasses import dataclass, field, fields
 from pathlib import Path
 
@@ -64,7 +65,7 @@ class ColumnMap:
     m_star: str = "mstar_msun"
 
     @classmethod
-    def parse(cls, text: str, flag: str = "--columns") -> tuple[ColumnMap, frozenset[str]]:
+    def parse(cls, text: str, flag: str = "columns") -> tuple[ColumnMap, frozenset[str]]:
         """Read ``quantity=column,...``; return the map and the quantities given explicitly."""
         known = {f.name for f in fields(cls)}
         mapping = {}
@@ -137,21 +138,61 @@ _MISSING = {"nan", "na", "n/a", "null", "none"}  # spellings of a missing value
 
 
 def _read_rows(path: Path) -> tuple[list[str], list[dict], list[int]]:
+    """Header, rows and the line each row starts on, read strictly.
+
+    A byte-order mark (what spreadsheet exports write) is accepted; refused with one line: a file
+    that is not UTF-8, a header naming a column twice, a row with more cells than the header, and a
+    quote that is not closed on its own line (csv would otherwise read the following lines into one
+    cell and silently lose those rows).
+    """
+    name = path.name
     try:
-        with path.open(newline="", encoding="utf-8") as fh:
-            reader = csv.DictReader(fh)
-            header = [h.strip() for h in (reader.fieldnames or [])]
-            reader.fieldnames = header
-            rows, lines = [], []
-            for row in reader:
-                rows.append(row)
-                lines.append(reader.line_num)
+        raw = path.read_bytes()
     except FileNotFoundError:
         raise InputError(f"catalogue {str(path)!r} does not exist") from None
-    except (OSError, UnicodeDecodeError, csv.Error) as exc:
-        raise InputError(f"catalogue {str(path)!r} cannot be read as CSV: {exc}") from None
-    if not header:
+    except IsADirectoryError:
+        raise InputError(f"catalogue {str(path)!r} is a folder; expected a CSV file") from None
+    except OSError as exc:
+        raise InputError(f"catalogue {str(path)!r} cannot be read ({exc.strerror})") from None
+    try:
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        line = raw[: exc.start].count(b"\n") + 1
+        raise InputError(
+            f"catalogue {name}, line {line}: not UTF-8 (byte {exc.start}); save the file as UTF-8"
+        ) from None
+    reader = csv.reader(io.StringIO(text, newline=""), strict=True)
+    start = 1
+    try:
+        header = [h.strip() for h in next(reader, [])]
+        rows, lines = [], []
+        start = reader.line_num + 1
+        for cells in reader:
+            if reader.line_num != start:  # one record spanning several lines: a quote left open
+                raise InputError(
+                    f'catalogue {name}, line {start}: a quote (") opened on this line is not closed on it; '
+                    "close it or remove it (quoted cells may not span lines)"
+                )
+            if cells and len(cells) > len(header):
+                raise InputError(
+                    f"catalogue {name}, line {start}: {len(cells)} cells but the header has {len(header)} columns"
+                )
+            if any(c.strip() for c in cells):
+                rows.append(dict(zip(header, cells)))
+                lines.append(start)
+            start = reader.line_num + 1
+    except csv.Error as exc:
+        why = (
+            'a quote (") opened on this line is never closed' if "end of data" in str(exc) else f"not valid CSV ({exc})"
+        )
+        raise InputError(f"catalogue {name}, line {start}: {why}") from None
+    if not any(header):
         raise InputError(f"catalogue {str(path)!r} is empty: expected a CSV header line")
+    seen = set()
+    for column in header:
+        if column in seen:
+            raise InputError(f"catalogue {name}, line 1: column {column!r} appears twice in the header; rename one")
+        seen.add(column)
     return header, rows, lines
 
 

@@ -23,7 +23,7 @@ import numpy as np
 import xarray as xr
 
 from scatter_pop.errors import InputError
-from scatter_pop.store.schema import ENERGY_TOLERANCE_DEFAULT
+from scatter_pop.store.schema import QualityCuts
 from scatter_pop.survey.catalogue import ObservedSample
 from scatter_pop.survey.cuts import Range, SampleCuts
 from scatter_pop.survey.forward_model import RVSurvey, SimulatedSample, simulated_sample
@@ -56,10 +56,8 @@ class CompareOptions:
         Target range [AU] of each system's initial innermost semi-major axis.
     star_mass : float or None
         Stellar mass of the ensembles [M_sun], if the datasets do not record it.
-    energy_tolerance : float
-        Largest accepted |dE/E|.
-    include_capped : bool
-        Keep systems stopped by the wall-clock cap.
+    quality : QualityCuts
+        Which systems are used (|dE/E| tolerance, capped systems kept or not).
     tidal : str
         Tidal-circularisation candidates: "keep", "drop" or "circularise".
     permutations : int
@@ -81,8 +79,7 @@ class CompareOptions:
     project_sin_i: bool = True
     rescale_a: Range | None = None
     star_mass: float | None = None
-    energy_tolerance: float = ENERGY_TOLERANCE_DEFAULT
-    include_capped: bool = False
+    quality: QualityCuts = QualityCuts()
     tidal: str = "keep"
     permutations: int = 2000
     uncertainty_draws: int = 100
@@ -131,7 +128,7 @@ def describe_e(e) -> dict:
     }
 
 
-def load_ensemble(path, *, partial: bool = False, flag: str = "DIR") -> xr.Dataset:
+def load_ensemble(path, *, partial: bool = False, flag: str = "path") -> xr.Dataset:
     """Open a run folder (its ``ensemble.nc``) or a netCDF file directly.
 
     Parameters
@@ -149,14 +146,17 @@ def load_ensemble(path, *, partial: bool = False, flag: str = "DIR") -> xr.Datas
     if p.is_dir() and not RunFolder(p).is_run_folder():
         p = p / "ensemble.nc"  # a bare folder holding ensemble.nc
     if not p.exists():
-        raise InputError(f"{flag} {str(path)!r}: neither a run folder nor a folder or file with ensemble.nc")
+        raise InputError(
+            f"{flag} = {str(path)!r}: neither a run folder nor a folder or file with ensemble.nc", arguments=(flag,)
+        )
     try:
         return open_ensemble(p, partial=partial)
     except InputError:
         raise
     except (OSError, ValueError, KeyError, RuntimeError) as exc:
         raise InputError(
-            f"{flag} {str(path)!r}: not a readable ensemble dataset ({' '.join(str(exc).split())})"
+            f"{flag} = {str(path)!r}: not a readable ensemble dataset ({' '.join(str(exc).split())})",
+            arguments=(flag,),
         ) from None
 
 
@@ -199,8 +199,7 @@ def compare(samples, observed: ObservedSample, options: CompareOptions = Compare
             survey=options.survey,
             project_sin_i=options.project_sin_i,
             star_mass=options.star_mass,
-            energy_tolerance=options.energy_tolerance,
-            include_capped=options.include_capped,
+            quality=options.quality,
             rescale_a=options.rescale_a,
             tidal=options.tidal,
         )

@@ -33,7 +33,7 @@ import xarray as xr
 from scatter_pop.constants import DAY_S, MJUP_MSUN, YEAR_S
 from scatter_pop.engine.outcome import EndReason, Settlement
 from scatter_pop.errors import InputError
-from scatter_pop.store.schema import ENERGY_TOLERANCE_DEFAULT, quality_mask, survivor_mask
+from scatter_pop.store.schema import QualityCuts, quality_mask, survivor_mask
 from scatter_pop.survey.cuts import CutLog, Range, SampleCuts
 from scatter_pop.survey.radial_velocity import isotropic_sin_i, orbital_period, semi_amplitude
 
@@ -103,24 +103,25 @@ def ensemble_star_mass(ds: xr.Dataset, override: float | None = None, name: str 
             mass = star.get("mass") if isinstance(star, dict) else None
             if isinstance(mass, (int, float)) and not isinstance(mass, bool) and mass > 0:
                 return float(mass)
-    raise InputError(f"{name}: the stellar mass is not recorded in the dataset; give it with --star-mass (M_sun)")
+    raise InputError(
+        f"{name}: the stellar mass is not recorded in the dataset; give it as star_mass (M_sun)",
+        arguments=("star_mass",),
+    )
 
 
-def quality_counts(
-    ds: xr.Dataset, *, energy_tolerance: float = ENERGY_TOLERANCE_DEFAULT, include_capped: bool = False
-) -> dict[str, int]:
+def quality_counts(ds: xr.Dataset, quality: QualityCuts = QualityCuts()) -> dict[str, int]:
     """Systems left out of the statistics, by reason (a system counts once, first reason).
 
     Returns
     -------
     dict
         ``systems``, ``failed``, ``capped`` (0 when capped runs are included),
-        ``energy_error`` (|dE/E| above ``energy_tolerance`` or unknown) and ``kept``.
+        ``energy_error`` (|dE/E| above ``quality.energy_tolerance`` or unknown) and ``kept``.
     """
     reason = ds["end_reason"].values
-    kept = quality_mask(ds, energy_tolerance=energy_tolerance, include_capped=include_capped).values
+    kept = quality_mask(ds, quality).values
     failed = reason == int(EndReason.FAILED)
-    capped = ~failed & (reason == int(EndReason.CAPPED)) & (not include_capped)
+    capped = ~failed & (reason == int(EndReason.CAPPED)) & (not quality.include_capped)
     return {
         "systems": int(reason.size),
         "failed": int(failed.sum()),
@@ -152,8 +153,7 @@ def survivor_table(
     rng,
     project_sin_i: bool = True,
     star_mass: float | None = None,
-    energy_tolerance: float = ENERGY_TOLERANCE_DEFAULT,
-    include_capped: bool = False,
+    quality: QualityCuts = QualityCuts(),
     rescale_a: Range | None = None,
     circularise_tidal: bool = False,
     settlement=None,
@@ -172,10 +172,8 @@ def survivor_table(
         sin i = 1 (true mass, edge-on K); ``sin_i`` holds the draw either way.
     star_mass : float or None
         Stellar mass [M_sun]; read from the dataset when None.
-    energy_tolerance : float
-        Largest accepted |dE/E|.
-    include_capped : bool
-        Keep systems stopped by the wall-clock cap.
+    quality : QualityCuts
+        Which systems are used (failed, capped and energy-flagged ones are left out).
     rescale_a : Range or None
         Target range [AU] of each system's initial innermost semi-major axis:
         a system is scaled by a_target / a_inner with a_target drawn
@@ -208,10 +206,7 @@ def survivor_table(
         inner = np.min(np.where(a0 > 0, a0, np.inf), axis=1)  # systems without planets: inf
         scale = np.where(np.isfinite(inner), target / inner, np.nan)
     sin_i_all = _sky_sin_i(ds["inc_final"].values, ds["node_final"].values, los_rng)
-    keep = np.asarray(
-        survivor_mask(ds, settlement, energy_tolerance=energy_tolerance, include_capped=include_capped).values,
-        dtype=bool,
-    )
+    keep = np.asarray(survivor_mask(ds, quality, settlement).values, dtype=bool)
     a_fin, e_fin = ds["a_final"].values, ds["e_final"].values
     si, pj = np.nonzero(keep)
     mass = ds["mass_final"].values[si, pj]
@@ -289,8 +284,7 @@ def simulated_sample(
     survey: RVSurvey | None = None,
     project_sin_i: bool = True,
     star_mass: float | None = None,
-    energy_tolerance: float = ENERGY_TOLERANCE_DEFAULT,
-    include_capped: bool = False,
+    quality: QualityCuts = QualityCuts(),
     rescale_a: Range | None = None,
     tidal: str = "keep",
 ) -> SimulatedSample:
@@ -307,7 +301,7 @@ def simulated_sample(
         ``project_sin_i``, true mass otherwise); ``m_star`` is ignored.
     survey : RVSurvey or None
         Keep only planets with K >= k_min and P <= baseline.
-    project_sin_i, star_mass, energy_tolerance, include_capped, rescale_a
+    project_sin_i, star_mass, quality, rescale_a
         As in :func:`survivor_table`.
     tidal : {"keep", "drop", "circularise"}
         What to do with tidal-circularisation candidates (survivors whose
@@ -329,20 +323,16 @@ def simulated_sample(
             rng=rng,
             project_sin_i=project_sin_i,
             star_mass=star_mass,
-            energy_tolerance=energy_tolerance,
-            include_capped=include_capped,
+            quality=quality,
             rescale_a=rescale_a,
             circularise_tidal=tidal == "circularise",
         )
         t["ensemble"] = np.full(t["e"].size, i, dtype=np.int64)
         tables.append(t)
-        for k, v in quality_counts(ds, energy_tolerance=energy_tolerance, include_capped=include_capped).items():
+        for k, v in quality_counts(ds, quality).items():
             excluded[k] = excluded.get(k, 0) + v
     table = {k: np.concatenate([t[k] for t in tables]) for k in tables[0]}
-    n_survivors = sum(
-        int(survivor_mask(ds, energy_tolerance=energy_tolerance, include_capped=include_capped).sum())
-        for ds in datasets
-    )
+    n_survivors = sum(int(survivor_mask(ds, quality).sum()) for ds in datasets)
     log = CutLog()
     log.record("systems", "systems", excluded["systems"])
     log.record("systems_kept", "systems kept (quality cuts)", excluded["kept"])

@@ -36,7 +36,7 @@ import scipy.stats
 import xarray as xr
 
 from scatter_pop.engine.outcome import Settlement
-from scatter_pop.store.schema import ENERGY_TOLERANCE_DEFAULT, quality_mask
+from scatter_pop.store.schema import QualityCuts, quality_mask
 from scatter_pop.survey.forward_model import ensemble_star_mass, quality_counts, survivor_table
 from scatter_pop.target.architecture import mass_ratio, min_spacing, planet_count
 from scatter_pop.target.branches import system_branch
@@ -124,8 +124,7 @@ def system_frame(
     label: str,
     target: Target,
     seed: int = 0,
-    energy_tolerance: float = ENERGY_TOLERANCE_DEFAULT,
-    include_capped: bool = False,
+    quality: QualityCuts = QualityCuts(),
 ) -> SystemFrame:
     """Extract the arrays of one ensemble (systems used only).
 
@@ -141,15 +140,11 @@ def system_frame(
     seed : int
         Seed of the lines of sight (one isotropic line of sight per system,
         :func:`scatter_pop.survey.forward_model.survivor_table`).
-    energy_tolerance : float
-        |ΔE/E| above which a system is left out.
-    include_capped : bool
-        Keep systems stopped by the wall-clock cap.
+    quality : QualityCuts
+        Which systems are used (|ΔE/E| tolerance, capped systems kept or not).
     """
-    use = np.asarray(
-        quality_mask(ds, energy_tolerance=energy_tolerance, include_capped=include_capped).values, dtype=bool
-    )
-    counts = quality_counts(ds, energy_tolerance=energy_tolerance, include_capped=include_capped)
+    use = np.asarray(quality_mask(ds, quality).values, dtype=bool)
+    counts = quality_counts(ds, quality)
     excluded = {"failed": counts["failed"], "capped": counts["capped"], "energy": counts["energy_error"]}
     m_star = ensemble_star_mass(ds, name=label)
     scale = target.mstar / m_star if target.mstar is not None else 1.0
@@ -157,8 +152,7 @@ def system_frame(
         ds,
         rng=np.random.default_rng(seed),
         project_sin_i=not target.true_mass,
-        energy_tolerance=energy_tolerance,
-        include_capped=include_capped,
+        quality=quality,
     )
     ids = ds["system"].values
     order = np.argsort(ids, kind="stable")
@@ -290,7 +284,7 @@ class Judgement:
     method: str
     ensembles: tuple[EnsembleJudgement, ...]
     pooled: EnsembleJudgement | None = None
-    energy_tolerance: float = ENERGY_TOLERANCE_DEFAULT
+    quality: QualityCuts = QualityCuts()
 
 
 def _bootstrap(data: tuple, statistic, *, n: int, confidence: float, resamples: int, rng) -> WeightedFraction:
@@ -407,8 +401,7 @@ def judge(
     confidence: float = 0.95,
     method: str = "exact",
     resamples: int = 2000,
-    energy_tolerance: float = ENERGY_TOLERANCE_DEFAULT,
-    include_capped: bool = False,
+    quality: QualityCuts = QualityCuts(),
 ) -> Judgement:
     """Judge a target planet against one or more ensembles.
 
@@ -429,10 +422,8 @@ def judge(
         Binomial interval: Clopper–Pearson or Wilson.
     resamples : int
         Bootstrap resamples of the weighted fractions.
-    energy_tolerance : float
-        |ΔE/E| above which a system is left out.
-    include_capped : bool
-        Keep systems stopped by the wall-clock cap.
+    quality : QualityCuts
+        Which systems are used (|ΔE/E| tolerance, capped systems kept or not).
 
     Returns
     -------
@@ -448,12 +439,9 @@ def judge(
     if len(labels) != len(datasets):
         raise ValueError(f"{len(labels)} labels for {len(datasets)} datasets")
     frames = [
-        system_frame(
-            ds, label=lab, target=target, seed=seed, energy_tolerance=energy_tolerance, include_capped=include_capped
-        )
-        for ds, lab in zip(datasets, labels)
+        system_frame(ds, label=lab, target=target, seed=seed, quality=quality) for ds, lab in zip(datasets, labels)
     ]
     kw = dict(confidence=confidence, method=method, resamples=resamples, seed=seed)
     results = tuple(judge_frame(f, target, windows, **kw) for f in frames)
     pooled = judge_frame(pool_frames(frames), target, windows, **kw) if len(frames) > 1 else None
-    return Judgement(target, windows, seed, confidence, method, results, pooled, energy_tolerance)
+    return Judgement(target, windows, seed, confidence, method, results, pooled, quality)

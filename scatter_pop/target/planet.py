@@ -1,10 +1,10 @@
 """The target planet and the windows that decide what counts as "like it".
 
 A target is one measured planet: e ± σ_e, a ± σ_a [AU], m sin i ± σ [M_sun]
-and optionally its star's mass [M_sun].  :func:`target_from_flags` builds it
-from command-line values (masses in M_J) and raises
-:class:`~scatter_pop.errors.InputError` naming the flag when a value is not
-allowed.
+and optionally its star's mass [M_sun].  :func:`target_from_values` builds it
+from user values (masses in M_J) and raises
+:class:`~scatter_pop.errors.InputError` naming the value when it is not
+allowed; :mod:`scatter_pop.target.target_file` reads them from a small TOML file.
 
 A simulated survivor is "like the target" when (see :class:`Windows`)
 
@@ -16,7 +16,7 @@ A simulated survivor is "like the target" when (see :class:`Windows`)
   (default 2), or within [m/F, m·F] if ``msini_factor`` F is given.
 
 ±2σ windows are a common-practice choice (about 95 % of a Gaussian
-measurement), not a published rule; the windows are flags so that a reader
+measurement), not a published rule; the windows are user values so that a reader
 can see how the answer depends on them.
 """
 
@@ -28,7 +28,17 @@ from dataclasses import dataclass
 from scatter_pop.constants import MJUP_MSUN
 from scatter_pop.errors import InputError
 
-__all__ = ["Target", "Windows", "TargetPoint", "target_from_flags", "windows_from_flags", "target_point_from_flag"]
+__all__ = [
+    "Target",
+    "Windows",
+    "TargetPoint",
+    "TARGET_VALUES",
+    "target_from_values",
+    "windows_from_values",
+    "target_point",
+    "target_from_flags",
+    "windows_from_flags",
+]
 
 
 @dataclass(frozen=True)
@@ -75,20 +85,36 @@ class Target:
             raise ValueError(f"target values out of range: {self!r}")
 
 
-def _number(flag: str, value, allowed: str, ok) -> float:
+def _number(key: str, value, allowed: str, ok, where: str = "") -> float:
+    """``value`` as a finite float for which ``ok`` holds, or InputError naming ``where + key``."""
+    name = f"{where}{key}"
+    if isinstance(value, bool):
+        raise InputError(f"{name} = {value!r}: must be a number ({allowed})", arguments=(key,))
     try:
         x = float(value)
-    except (TypeError, ValueError):
-        raise InputError(f"{flag} {value!r}: must be a number ({allowed})") from None
+    except (TypeError, ValueError, OverflowError):
+        raise InputError(f"{name} = {value!r}: must be a number ({allowed})", arguments=(key,)) from None
     if not math.isfinite(x) or not ok(x):
-        raise InputError(f"{flag} {value!r}: must be {allowed}")
+        raise InputError(f"{name} = {value!r}: must be {allowed}", arguments=(key,))
     return x
 
 
-def target_from_flags(
-    *, e, e_err, a, a_err, msini, msini_err, mstar=None, name: str = "target", true_mass: bool = False
+# what each target value may be: (allowed, check)
+TARGET_VALUES = {
+    "e": ("in [0, 1)", lambda x: 0.0 <= x < 1.0),
+    "e_err": (">= 0", lambda x: x >= 0),
+    "a": ("> 0 (AU)", lambda x: x > 0),
+    "a_err": (">= 0 (AU)", lambda x: x >= 0),
+    "msini": ("> 0 (M_J)", lambda x: 0 < x <= 1e5),
+    "msini_err": (">= 0 (M_J)", lambda x: x >= 0),
+    "star_mass": ("> 0 (M_sun)", lambda x: 0 < x <= 1e3),
+}
+
+
+def target_from_values(
+    *, e, e_err, a, a_err, msini, msini_err, star_mass=None, name: str = "target", true_mass: bool = False, where=""
 ) -> Target:
-    """Check command-line target values and build a :class:`Target`.
+    """Check target values (masses in M_J) and build a :class:`Target`.
 
     Parameters
     ----------
@@ -98,27 +124,40 @@ def target_from_flags(
         Semi-major axis [AU] (> 0) and its uncertainty [AU] (>= 0).
     msini, msini_err : float
         m sin i [M_J] (> 0) and its uncertainty [M_J] (>= 0).
-    mstar : float or None
-        Stellar mass [M_sun] (> 0).
+    star_mass : float or None
+        Mass of the target's star [M_sun] (> 0).
     name : str
         Name used in reports.
     true_mass : bool
         ``msini`` is a true mass (no projection of simulated masses).
+    where : str
+        Prefix of the names in messages (e.g. ``"target.toml: target."``).
 
     Raises
     ------
     InputError
-        Naming the flag (``--e``, ``--e-err``, ...), the value and what is allowed.
+        Naming the argument (``e``, ``e_err``, ...), the value and what is allowed.
     """
-    e = _number("--e", e, "in [0, 1)", lambda x: 0.0 <= x < 1.0)
-    e_err = _number("--e-err", e_err, ">= 0", lambda x: x >= 0)
-    a = _number("--a", a, "> 0 (AU)", lambda x: x > 0)
-    a_err = _number("--a-err", a_err, ">= 0 (AU)", lambda x: x >= 0)
-    msini = _number("--msini", msini, "> 0 (M_J)", lambda x: x > 0)
-    msini_err = _number("--msini-err", msini_err, ">= 0 (M_J)", lambda x: x >= 0)
-    if mstar is not None:
-        mstar = _number("--mstar", mstar, "> 0 (M_sun)", lambda x: x > 0)
-    return Target(e, e_err, a, a_err, msini * MJUP_MSUN, msini_err * MJUP_MSUN, mstar, str(name), bool(true_mass))
+    given = dict(e=e, e_err=e_err, a=a, a_err=a_err, msini=msini, msini_err=msini_err)
+    v = {k: _number(k, x, *TARGET_VALUES[k], where=where) for k, x in given.items()}
+    if star_mass is not None:
+        star_mass = _number("star_mass", star_mass, *TARGET_VALUES["star_mass"], where=where)
+    return Target(
+        v["e"],
+        v["e_err"],
+        v["a"],
+        v["a_err"],
+        v["msini"] * MJUP_MSUN,
+        v["msini_err"] * MJUP_MSUN,
+        star_mass,
+        str(name),
+        bool(true_mass),
+    )
+
+
+def target_from_flags(*, mstar=None, **values) -> Target:
+    """Older name of :func:`target_from_values` (``mstar`` is its ``star_mass``)."""
+    return target_from_values(star_mass=mstar, **values)
 
 
 @dataclass(frozen=True)
@@ -162,34 +201,39 @@ class Windows:
         return max(t.e - self.e_sigmas * t.e_err, 0.0)
 
 
-def windows_from_flags(
-    target: Target, *, a_window=2.0, a_factor=None, msini_window=2.0, msini_factor=None, e_window=0.0
+def windows_from_values(
+    target: Target, *, a_window=2.0, a_factor=None, msini_window=2.0, msini_factor=None, e_window=0.0, where=""
 ) -> Windows:
-    """Check the window flags against the target and build :class:`Windows`.
+    """Check the window values against the target and build :class:`Windows`.
 
     Raises
     ------
     InputError
         For a negative width, a factor <= 1, or a window of zero width (an
-        uncertainty of 0 with a σ window).
+        uncertainty of 0 with a σ window), naming the argument.
     """
-    a_window = _number("--a-window", a_window, "> 0 (in units of --a-err)", lambda x: x > 0)
-    msini_window = _number("--msini-window", msini_window, "> 0 (in units of --msini-err)", lambda x: x > 0)
-    e_window = _number("--e-window", e_window, ">= 0 (in units of --e-err)", lambda x: x >= 0)
+    a_window = _number("a_window", a_window, "> 0 (in units of a_err)", lambda x: x > 0, where)
+    msini_window = _number("msini_window", msini_window, "> 0 (in units of msini_err)", lambda x: x > 0, where)
+    e_window = _number("e_window", e_window, ">= 0 (in units of e_err)", lambda x: x >= 0, where)
     if a_factor is not None:
-        a_factor = _number("--a-factor", a_factor, "> 1", lambda x: x > 1)
+        a_factor = _number("a_factor", a_factor, "> 1", lambda x: x > 1, where)
     elif target.a_err == 0:
         raise InputError(
-            "--a-err 0: the a window of ±--a-window x --a-err is empty; give --a-err > 0 or --a-factor F (> 1)"
+            f"{where}a_err = 0: the a window of ±a_window x a_err is empty; give a_err > 0 or a_factor F (> 1)",
+            arguments=("a_err", "a_window", "a_factor"),
         )
     if msini_factor is not None:
-        msini_factor = _number("--msini-factor", msini_factor, "> 1", lambda x: x > 1)
+        msini_factor = _number("msini_factor", msini_factor, "> 1", lambda x: x > 1, where)
     elif target.msini_err == 0:
         raise InputError(
-            "--msini-err 0: the m sin i window of ±--msini-window x --msini-err is "
-            "empty; give --msini-err > 0 or --msini-factor F (> 1)"
+            f"{where}msini_err = 0: the m sin i window of ±msini_window x msini_err is "
+            "empty; give msini_err > 0 or msini_factor F (> 1)",
+            arguments=("msini_err", "msini_window", "msini_factor"),
         )
     return Windows(a_window, a_factor, msini_window, msini_factor, e_window)
+
+
+windows_from_flags = windows_from_values  # older name
 
 
 @dataclass(frozen=True)
@@ -206,19 +250,7 @@ class TargetPoint:
     name: str = "target"
 
 
-def target_point_from_flag(text: str, name: str = "target", flag: str = "--target") -> TargetPoint:
-    """Read ``E,E_ERR,A,A_ERR`` (a in AU) from one flag.
-
-    Raises
-    ------
-    InputError
-        Naming the flag, the value and what is allowed.
-    """
-    parts = [p.strip() for p in str(text).split(",")]
-    if len(parts) != 4:
-        raise InputError(f"{flag} {text!r}: must be E,E_ERR,A,A_ERR (four numbers, a in AU), e.g. 0.9,0.02,9,1.5")
-    e = _number(f"{flag} (E)", parts[0], "in [0, 1)", lambda x: 0.0 <= x < 1.0)
-    e_err = _number(f"{flag} (E_ERR)", parts[1], ">= 0", lambda x: x >= 0)
-    a = _number(f"{flag} (A)", parts[2], "> 0 (AU)", lambda x: x > 0)
-    a_err = _number(f"{flag} (A_ERR)", parts[3], ">= 0 (AU)", lambda x: x >= 0)
-    return TargetPoint(e, e_err, a, a_err, str(name))
+def target_point(*, e, e_err, a, a_err, name: str = "target", where: str = "") -> TargetPoint:
+    """Check e ± σ_e and a ± σ_a [AU] and build a :class:`TargetPoint` (InputError names the argument)."""
+    v = {k: _number(k, x, *TARGET_VALUES[k], where=where) for k, x in dict(e=e, e_err=e_err, a=a, a_err=a_err).items()}
+    return TargetPoint(v["e"], v["e_err"], v["a"], v["a_err"], str(name))

@@ -194,15 +194,15 @@ def caveats(r: EnsembleJudgement, j: Judgement) -> list[str]:
         f"those of real systems, nor about how common such systems are."
     ]
     cuts = (
-        "Cuts: the answer depends on the windows (--a-window, --a-factor, --msini-window, "
-        "--e-window); the likelihood-weighted fraction uses the uncertainties instead."
+        "Cuts: the answer depends on the windows (a_window, a_factor, msini_window, msini_factor, "
+        "e_window of the target file); the likelihood-weighted fraction uses the uncertainties instead."
     )
     ex = r.excluded
     if sum(ex.values()):
         cuts += (
             f" {sum(ex.values())} of {r.n_total} systems were left out ({ex['failed']} failed, "
             f"{ex['capped']} stopped by the wall-clock cap, {ex['energy']} with |dE/E| > "
-            f"{j.energy_tolerance:g})."
+            f"{j.quality.energy_tolerance:g})."
         )
         if ex["capped"]:
             cuts += " Capped systems are the long-lived ones: leaving them out can bias the fractions."
@@ -228,7 +228,7 @@ def caveats(r: EnsembleJudgement, j: Judgement) -> list[str]:
         )
     else:
         star = f"a {r.star_mass:g} M_sun star" if r.star_mass is not None else "their ensembles' stars"
-        out.append(f"Scaling: --mstar not given; masses compared as simulated around {star}.")
+        out.append(f"Scaling: the target's star_mass not given; masses compared as simulated around {star}.")
     if not t.true_mass:
         out.append(
             f"Projection: the counts use one random draw of sin i per planet (seed {j.seed}); "
@@ -369,7 +369,8 @@ def _clean(x):
 
 def to_dict(j: Judgement) -> dict:
     """The judgement as plain JSON-ready values (NaN -> None), with verdicts and caveats."""
-    doc = dataclasses.asdict(j)
+    doc = dataclasses.asdict(j)  # "quality": energy_tolerance and include_capped
+    doc["energy_tolerance"] = j.quality.energy_tolerance  # where verdict.json had it before QualityCuts
     doc["units"] = {
         "a": "au",
         "msini": "Msun",

@@ -59,7 +59,7 @@ def test_json_and_nc_path_and_output_file(runs, capsys, tmp_path):
             str(DATA),
             "--format",
             "json",
-            "--output",
+            "--out",
             str(out_file),
             "--seed",
             "4",
@@ -95,7 +95,7 @@ BAD_FLAGS = [
     (["--mass-range", "0.3"], "--mass-range"),
     (["--period-range", "x,y"], "--period-range"),
     (["--rescale-a", "0,2"], "--rescale-a"),
-    (["--star-mass=-1"], "--star-mass"),
+    (["--ensemble-star-mass=-1"], "--ensemble-star-mass"),
     (["--format", "html"], "--format"),
     (["--permutations", "0"], "--permutations"),
     (["--error-draws", "many"], "--error-draws"),
@@ -112,7 +112,7 @@ def test_bad_flags_one_line_exit_2(runs, capsys, flags, word, tmp_path):
     two, _ = runs
     keep = tmp_path / "previous.txt"
     keep.write_text("earlier result\n")
-    code, out, err = _run(capsys, [str(two), "--observed", str(DATA), *flags, "--output", str(keep)])
+    code, out, err = _run(capsys, [str(two), "--observed", str(DATA), *flags, "--out", str(keep)])
     assert code == 2 and out == ""
     assert len(err.strip().splitlines()) == 1 and word in err and "Traceback" not in err
     assert keep.read_text() == "earlier result\n"  # nothing already written is lost
@@ -146,8 +146,8 @@ def test_bad_dir_and_missing_star_mass(runs, capsys, tmp_path):
     del ds.attrs["star_mass"]
     folder = write_run(tmp_path / "nostar", ds)
     code, _, err = _run(capsys, [str(folder), "--observed", str(DATA), *FAST])
-    assert code == 2 and "--star-mass" in err
-    code, out, err = _run(capsys, [str(folder), "--observed", str(DATA), "--star-mass", "1.0", *FAST])
+    assert code == 2 and "--ensemble-star-mass" in err
+    code, out, err = _run(capsys, [str(folder), "--observed", str(DATA), "--ensemble-star-mass", "1.0", *FAST])
     assert code == 0, err
 
 

@@ -104,7 +104,7 @@ def test_demo_bad_target_file_is_one_line_and_exit_2(tmp_path, capsys):
     (tmp_path / "tiny_target.toml").write_text(TARGET.replace("e = 0.8", "e = 1.3"))
     assert demo.main([str(spec), "--out", str(tmp_path / "out")]) == 2
     err = capsys.readouterr().err.strip().splitlines()
-    assert len(err) == 1 and "--e" in err[0] and "tiny_target.toml" in err[0]
+    assert len(err) == 1 and "target.e = 1.3" in err[0] and "tiny_target.toml" in err[0]
     assert not (tmp_path / "out").exists()  # nothing started
 
 

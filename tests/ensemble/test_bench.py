@@ -46,11 +46,11 @@ def test_paths_subset_keeps_the_reference_and_unknown_names_are_refused():
 @pytest.mark.parametrize(
     "argv, word",
     [
-        (["bench", "--quick", "--systems", "1"], "--systems 1"),
-        (["bench", "--quick", "--end-time", "-5"], "--end-time"),
-        (["bench", "--quick", "--paths", "rk4"], "--paths rk4"),
-        (["bench", "--quick", "--workers", "-1"], "--workers -1"),
-        (["bench", "--quick", "--json", "/no/such/folder/x.json"], "--json"),
+        (["bench", "--systems", "1"], "--systems = 1"),
+        (["bench", "--end-time", "-5"], "--end-time"),
+        (["bench", "--paths", "rk4"], "--paths = rk4"),
+        (["bench", "--workers", "-1"], "--workers = -1"),
+        (["bench", "--out", "/no/such/folder/x.json"], "--out"),
     ],
 )
 def test_user_errors_are_one_line_and_exit_2(argv, word, capsys):
@@ -153,7 +153,7 @@ def test_branching_fractions_count_planet_fates():
 @pytest.mark.slow
 def test_quick_benchmark_runs_every_path(tmp_path, capsys):
     out = tmp_path / "bench.json"
-    assert cli.main(["bench", "--quick", "--json", str(out)]) == 0
+    assert cli.main(["bench", "--out", str(out)]) == 0
     table = capsys.readouterr().out
     doc = json.loads(out.read_text())
     labels = ["reference", "default"] + [

@@ -151,7 +151,7 @@ def test_cluster_file(tmp_path):
     path.write_text("kind = \n")
     with pytest.raises(InputError, match=r"allocation\.toml: not valid TOML"):
         load_cluster_file(path)
-    with pytest.raises(InputError, match=r"^--cluster = .*nowhere\.toml\": cannot read"):
+    with pytest.raises(InputError, match=r"^cluster file .*nowhere\.toml\": cannot read"):
         load_cluster_file(tmp_path / "nowhere.toml")
 
 
@@ -163,12 +163,12 @@ def test_command_line_overrides():
     c = apply_overrides(slurm, scheduler="tcp://10.1.2.3:8786")
     assert c == ClusterConfig(kind="address", address="tcp://10.1.2.3:8786")
     for kwargs, pattern in [
-        ({"workers": 0}, r"^--workers = 0: allowed: an integer >= 1$"),
-        ({"scheduler": "nowhere"}, r'^--scheduler = "nowhere": allowed: '),
+        ({"workers": 0}, r"^workers = 0: allowed: an integer >= 1$"),
+        ({"scheduler": "nowhere"}, r'^scheduler = "nowhere": allowed: '),
     ]:
         with pytest.raises(InputError, match=pattern):
             apply_overrides(slurm, **kwargs)
-    with pytest.raises(InputError, match=r"^--workers = 2: applies to kind local, slurm or pbs"):
+    with pytest.raises(InputError, match=r"^workers = 2: applies to kind local, slurm or pbs"):
         apply_overrides(ClusterConfig(kind="address", address="h:1"), workers=2)
 
 

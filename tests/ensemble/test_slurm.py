@@ -229,8 +229,42 @@ def test_ensemble_on_slurm_equals_local_bit_for_bit(slurm, tmp_path):
     assert status == 0
     assert len(list((tmp_path / "logs").glob("scatter-pop-*.err"))) >= 1  # SLURM jobs did it
     assert wait_for_no_jobs(20.0) == []
-    on_slurm = xr.load_dataset(tmp_path / "on_slurm" / "ensemble.nc")
+    on_slurm = xr.load_dataset(tmp_path / "on_slurm" / "ensemble.nc", mask_and_scale=False)  # codes as stored
     local = run_ensemble(spec, out=tmp_path / "local", workers=2, cluster=ClusterConfig(dashboard_port=0))
     assert on_slurm.sizes["system"] == local.sizes["system"] == 4
     assert np.array_equal(on_slurm["system"].values, local["system"].values)
     assert _physics_equal(on_slurm, local) == []
+
+
+def _spec_with_cluster(tmp_path, walltime: str) -> str:
+    """tests/data/tiny.toml with a [cluster] table for this SLURM (wall-clock cap 600 s per system)."""
+    tiny = open(os.path.join(TESTS, "data", "tiny.toml"), encoding="utf-8").read()
+    tiny = tiny.replace("end_time = 1000.0", "end_time = 1000.0\nwall_seconds_max = 600.0")
+    tiny = tiny.replace("systems = 4", "systems = 4\nbatch_size = 1")
+    lines = [f"{k} = {v!r}".replace("'", '"') for k, v in slurm_table(tmp_path, walltime=walltime).items()]
+    return tiny + "\n[cluster]\n" + "\n".join(lines) + "\n"
+
+
+def test_dry_run_prints_a_job_script_sbatch_accepts_and_refuses_the_walltime_the_run_refuses(slurm, tmp_path, capsys):
+    from scatter_pop.cli import main
+
+    spec = tmp_path / "slurm.toml"
+    spec.write_text(_spec_with_cluster(tmp_path, "01:00:00"))
+    out = tmp_path / "out"
+    assert main(["run", str(spec), "--out", str(out), "--dry-run"]) == 0
+    printed = capsys.readouterr().out
+    script = printed[printed.index("#!") : printed.index("nothing was computed")]
+    (tmp_path / "job.sh").write_text(script)
+    proc = subprocess.run(["sbatch", "--test-only", str(tmp_path / "job.sh")], capture_output=True, text=True)
+    assert proc.returncode == 0 and "to start at" in proc.stderr, proc.stderr
+    assert not out.exists() and squeue_jobs() == []  # nothing submitted, no folder
+
+    # 10 min cannot hold a 600 s batch (workers retire earlier): the dry run says what the run says
+    spec.write_text(_spec_with_cluster(tmp_path, "00:10:00"))
+    answers = []
+    for argv in (["run", str(spec), "--out", str(out), "--dry-run"], ["run", str(spec), "--out", str(out)]):
+        assert main(argv) == 2
+        err = capsys.readouterr().err.strip().splitlines()
+        assert len(err) == 1 and "cluster.walltime" in err[0] and "at least" in err[0]
+        answers.append(err[0].split("error: ", 1)[1])
+    assert answers[0] == answers[1] and not out.exists() and squeue_jobs() == []

@@ -11,7 +11,7 @@ from records import planet, random_ensemble, system
 from scatter_pop.constants import MJUP_MSUN
 from scatter_pop.engine.outcome import EndReason, Fate
 from scatter_pop.errors import InputError
-from scatter_pop.store.schema import records_to_dataset
+from scatter_pop.store.schema import QualityCuts, records_to_dataset
 from scatter_pop.survey import radial_velocity as rv
 from scatter_pop.survey.cuts import Range, SampleCuts
 from scatter_pop.survey.forward_model import (
@@ -96,7 +96,7 @@ def test_quality_cuts_counted():
     ]
     ds = _ds(recs)
     assert quality_counts(ds) == {"systems": 6, "failed": 1, "capped": 1, "energy_error": 2, "kept": 2}
-    assert quality_counts(ds, include_capped=True)["kept"] == 3
+    assert quality_counts(ds, QualityCuts(include_capped=True))["kept"] == 3
     t = survivor_table(ds, rng=0)
     assert t["system"].tolist() == [0, 5, 5] and t["planet"].tolist() == [0, 0, 1]
     sample = simulated_sample(ds, rng=0)
@@ -106,7 +106,7 @@ def test_quality_cuts_counted():
         ("survivors", 3),
         ("bound", 3),
     ]
-    assert len(survivor_table(ds, rng=0, energy_tolerance=1e-2)["e"]) == 4
+    assert len(survivor_table(ds, rng=0, quality=QualityCuts(energy_tolerance=1e-2))["e"]) == 4
     with warnings.catch_warnings():
         warnings.simplefilter("error")  # failed systems must not upset the rescaling
         t = survivor_table(ds, rng=0, rescale_a=Range(2.0, 2.0))
@@ -162,7 +162,7 @@ def test_star_mass_from_attributes_spec_or_flag():
     ds = random_ensemble(3, 0, lambda r: 0.1)
     assert ensemble_star_mass(ds) == 1.0
     del ds.attrs["star_mass"]
-    with pytest.raises(InputError, match="--star-mass"):
+    with pytest.raises(InputError, match="star_mass"):
         ensemble_star_mass(ds)
     ds.attrs["spec_toml"] = "[star]\nmass = 0.8\n"
     assert ensemble_star_mass(ds) == 0.8

@@ -14,6 +14,7 @@ from scatter_pop import cli
 from scatter_pop.constants import MJUP_MSUN
 from scatter_pop.engine.outcome import EndReason, Fate
 from scatter_pop.engine.stability import hill_spacing
+from scatter_pop.store.schema import QualityCuts
 from scatter_pop.survey.forward_model import ensemble_star_mass
 from scatter_pop.target.architecture import min_spacing
 from scatter_pop.target.judgement import judge
@@ -116,7 +117,7 @@ def test_left_out_systems_are_counted_not_used():
     res = judge(dataset(recs, 2), _target(true_mass=True)).ensembles[0]
     assert res.excluded == {"failed": 1, "capped": 1, "energy": 1}
     assert (res.systems.k, res.systems.n) == (2, 47)
-    kept = judge(dataset(recs, 2), _target(true_mass=True), include_capped=True).ensembles[0]
+    kept = judge(dataset(recs, 2), _target(true_mass=True), quality=QualityCuts(include_capped=True)).ensembles[0]
     assert (kept.systems.k, kept.systems.n) == (3, 48)
     assert "left out" in render_text(judge(dataset(recs, 2), _target(true_mass=True)))
 
@@ -351,7 +352,7 @@ BAD = [
     (["--msini", "0"], "--msini"),
     (["--msini", "-2"], "--msini"),
     (["--msini-err", "-0.5"], "--msini-err"),
-    (["--mstar", "0"], "--mstar"),
+    (["--star-mass", "0"], "--star-mass"),
     (["--a-factor", "1"], "--a-factor"),
     (["--a-window", "0"], "--a-window"),
     (["--a-err", "0"], "--a-err"),
