@@ -30,6 +30,10 @@ def _target(**kw):
     return target_from_flags(**{**TARGET, **kw})
 
 
+# the target of the hand-made ensembles below, as judge flags
+TARGET_FLAGS = ["--e", "0.9", "--e-err", "0.02", "--a", "9", "--a-err", "1.5", "--msini", "5", "--msini-err", "0.5"]
+
+
 def _match():
     # a survivor inside every window: e 0.95 >= 0.9, a 9 AU, 5 M_J
     return [planet(5.0, 9.0, 0.95, a_initial=5.0), planet(1.0, -20.0, 1.3, a_initial=6.5, fate=Fate.EJECTED)]
@@ -315,18 +319,7 @@ def test_cli_judge_text_and_files(tmp_path, capsys):
         [
             "judge",
             str(run),
-            "--e",
-            "0.9",
-            "--e-err",
-            "0.02",
-            "--a",
-            "9",
-            "--a-err",
-            "1.5",
-            "--msini",
-            "5",
-            "--msini-err",
-            "0.5",
+            *TARGET_FLAGS,
             "--true-mass",
             "--out",
             str(out),
@@ -384,18 +377,7 @@ def test_cli_missing_run_folder(tmp_path, capsys):
         [
             "judge",
             str(tmp_path / "nowhere"),
-            "--e",
-            "0.9",
-            "--e-err",
-            "0.02",
-            "--a",
-            "9",
-            "--a-err",
-            "1.5",
-            "--msini",
-            "5",
-            "--msini-err",
-            "0.5",
+            *TARGET_FLAGS,
         ],
         capsys,
     )
