@@ -87,6 +87,7 @@ class _Recorder:
         self.calls = 0
         self.targets = None
         self.real = None  # mask of the lanes that hold a real system
+        self.stops = None  # per lane, the time after whose first step past it the call stops (inf: none)
 
 
 class LaneIntegrator:
@@ -142,19 +143,25 @@ class LaneIntegrator:
         if rec.stop:
             return False
         rec.calls += 1
+        if rec.stops is not None and bool(np.any(ta.time >= rec.stops)):
+            return False
         if rec.calls % TARGET_CHECK_STEPS:
             return True
         return not bool(np.any((ta.time >= rec.targets) & rec.real))
 
-    def propagate(self, targets, real):
-        """Advance every lane towards its own target; stop early after a step with a stopping event
-        or once some real lane is at its target (checked every TARGET_CHECK_STEPS steps).
+    def propagate(self, targets, real, stops=None):
+        """Advance every lane towards its own target; stop early after a step with a stopping event,
+        after the first step that takes a lane to or past its ``stops`` time (checked every step), or
+        once some real lane is at its target (checked every TARGET_CHECK_STEPS steps).
 
         Returns (hits, steps per lane, outcome ok per lane).
         """
         rec = self.recorder
         rec.hits, rec.stop, rec.calls = [], False, 0
         rec.targets, rec.real = np.asarray(targets, dtype=float), np.asarray(real, dtype=bool)
+        rec.stops = None
+        if stops is not None and np.isfinite(stops).any():
+            rec.stops = np.asarray(stops, dtype=float)
         self.ta.propagate_until(rec.targets, callback=self._step_callback)
         res = self.ta.propagate_res
         return list(rec.hits), [int(r[3]) for r in res], [r[0] in self._ok for r in res]
