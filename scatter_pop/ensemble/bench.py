@@ -149,7 +149,22 @@ TOGETHER_BATCH = MAX_AUTO_BATCH
 
 
 def _rss_mb() -> float:
-    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
+    """Peak resident memory of this process's own address space, MB.
+
+    Linux ``VmHWM`` (/proc/self/status), not ``ru_maxrss``: getrusage's figures are preserved across
+    execve (getrusage(2)), so a spawned worker's ru_maxrss starts at its parent's peak (measured: a
+    driver holding 414 MB gave its fresh worker a ru_maxrss of 414 MB against a VmHWM of 15 MB).
+    Elsewhere ru_maxrss (macOS reports it in bytes, Linux in KB).
+    """
+    try:
+        with open("/proc/self/status", encoding="ascii") as fh:
+            for line in fh:
+                if line.startswith("VmHWM:"):
+                    return int(line.split()[1]) / 1024.0
+    except OSError:
+        pass
+    peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+    return peak / 1024.0 / (1024.0 if sys.platform == "darwin" else 1.0)
 
 
 def _run_one(spec_text: str, integration: dict, reference: bool, index: int):
