@@ -33,7 +33,8 @@ import tempfile
 import time
 from dataclasses import asdict, replace
 
-from scatter_pop.ensemble.bench import Path, bench_spec, run_paths, summarize
+from scatter_pop.ensemble.bench import TOGETHER_BATCH, Path, bench_spec, run_paths, summarize
+from scatter_pop.spec.reader import IntegrationSpec
 
 FATES = ("survived", "ejected", "merged", "hit_star", "tidally_disrupted")
 
@@ -83,7 +84,12 @@ def main(argv=None) -> int:
     ap.add_argument("--workers", type=int, default=2)
     ap.add_argument("--no-bs", action="store_true", help="leave out the BS path")
     ap.add_argument("--permutations", type=int, default=2000)
-    ap.add_argument("--block", type=int, default=40, help="systems per block; tables after each block")
+    ap.add_argument(
+        "--block",
+        type=int,
+        default=TOGETHER_BATCH,
+        help="systems per block (a taylor call's batch at most); tables after each",
+    )
     ap.add_argument("--json", default=None)
     args = ap.parse_args(argv)
     tols = [float(x) for x in args.tolerances.split(",") if x.strip()]
@@ -122,6 +128,19 @@ def main(argv=None) -> int:
         f"cold compile (empty disk cache, fresh process), tolerance {tols[0]:.0e}, {lanes} lanes: "
         + ", ".join(f"{n} bodies {s:.2f} s" for n, s in cold.items())
         + f"; total {sum(cold.values()):.2f} s",
+        flush=True,
+    )
+    default = replace(base, integrator="taylor", taylor_tolerance=IntegrationSpec().taylor_tolerance)
+    alone = run_paths(
+        bench_spec(min(args.systems, TOGETHER_BATCH), args.end_time),
+        [Path("default only", default, False)],
+        workers=1,
+        log=lambda s: None,
+    )
+    peak = max(mb for _, _, mb in alone["default only"])
+    print(
+        f"worker peak memory running only the default taylor path ({default.taylor_tolerance:.0e}), "
+        f"{min(args.systems, TOGETHER_BATCH)} systems in one call in a fresh process: {peak:.0f} MB",
         flush=True,
     )
     return 0

@@ -23,10 +23,28 @@ from dataclasses import asdict, dataclass, field
 from pathlib import Path
 
 from scatter_pop.errors import InputError
+from scatter_pop.spec.model import END_KEYS  # a kept state continues to a later end time: not part of its identity
 
-__all__ = ["Ledger", "FateEntry", "write_checkpoint", "read_checkpoint", "CHECKPOINT_MAGIC"]
+__all__ = [
+    "Ledger",
+    "FateEntry",
+    "write_checkpoint",
+    "read_checkpoint",
+    "CHECKPOINT_MAGIC",
+    "END_ON_CHECK",
+    "END_KEYS",
+    "without_end_time",
+]
 
 CHECKPOINT_MAGIC = b"SPCKPT01"
+END_ON_CHECK = 1e-12  # an end time this close (relative) to a chunk boundary counts as on it
+
+
+def without_end_time(identity: dict) -> dict:
+    """A checkpoint identity without the end-time keys of its ``integration`` section."""
+    out = dict(identity)
+    out["integration"] = {k: v for k, v in identity.get("integration", {}).items() if k not in END_KEYS}
+    return out
 
 
 @dataclass

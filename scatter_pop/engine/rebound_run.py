@@ -74,7 +74,7 @@ from scatter_pop.engine.encounters import (
     line_min_distance,
     merge_jump,
 )
-from scatter_pop.engine.ledger import FateEntry, Ledger, read_checkpoint, write_checkpoint
+from scatter_pop.engine.ledger import END_KEYS, END_ON_CHECK, FateEntry, Ledger, read_checkpoint, write_checkpoint
 from scatter_pop.engine.outcome import NO_PLANET, EndReason, Fate, SystemRecord
 from scatter_pop.engine.rebound_setup import STAR_NAME, build_simulation, restore_simulation, simulation_blob
 from scatter_pop.engine.rebound_state import astrocentric_orbit, body_size, fate_entry, hybrid_step, state_arrays
@@ -88,7 +88,6 @@ __all__ = ["SystemRun", "STAR_NAME"]
 
 HYBRID_CHECK_STEPS = 2000  # hybrid step re-checked every this many steps (~2 % Python overhead)
 STEP_CHANGE = 1.25  # ... and re-chosen when the wanted step differs by more than this factor
-END_ON_CHECK = 1e-12  # an end time this close (relative) to a chunk boundary counts as on it
 
 
 class SystemRun:
@@ -106,7 +105,7 @@ class SystemRun:
         self.events = False  # a merger, star contact or ejection since the step was chosen
         self.step_changes = []  # (t, dt) each time the hybrid step was re-chosen (diagnostics)
         identity = {"initial": asdict(initial), "integration": asdict(integration), "outcomes": asdict(outcomes)}
-        for key in ("wall_seconds_max", "end_time", "end_orbits"):  # a state continues to a later end
+        for key in ("wall_seconds_max", *END_KEYS):  # a state continues to a later end
             identity["integration"].pop(key)
         self.identity = json.loads(json.dumps(identity))
         if self.path is not None and self.path.exists():

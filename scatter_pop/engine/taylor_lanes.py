@@ -28,8 +28,9 @@ so that event-only parameters (the first-encounter radius, switched off once fou
 (``tests/engine/test_taylor.py`` checks it).  With the full set of 15 events (4 bodies) the trajectories
 are not bitwise those of the bare N-body integrator (``analysis/taylor_event_cost.py``: the extra terms
 change the compiled evaluation, then chaos amplifies the last bits); they are still a function of the
-lane's own state and parameters only.  The event search costs about as much as the step itself
-(27 vs 48 us per 8-lane step at tol 1e-9, 28 vs 66 us at 1e-12, measured).
+lane's own state and parameters only.  Event detection costs a mostly fixed share of
+the step (``analysis/taylor_event_cost.log``, per 8-lane step: 2.5 us bare, 3.6 us with the 3 contact
+events, 4.4 us with all 15 at tol 1e-9; 3.7, 5.3 and 6.2 us at 1e-12).
 
 The callbacks only record (lane, time, slot); every kind but ``hill`` also asks the step callback
 of ``propagate_until`` to stop the call after the step (all lanes stop at the end of a normal step;
@@ -87,6 +88,7 @@ class _Recorder:
         self.calls = 0
         self.targets = None
         self.real = None  # mask of the lanes that hold a real system
+        self.stops = None  # per lane, the time after whose first step past it the call stops (inf: none)
 
 
 class LaneIntegrator:
@@ -142,19 +144,25 @@ class LaneIntegrator:
         if rec.stop:
             return False
         rec.calls += 1
+        if rec.stops is not None and bool(np.any(ta.time >= rec.stops)):
+            return False
         if rec.calls % TARGET_CHECK_STEPS:
             return True
         return not bool(np.any((ta.time >= rec.targets) & rec.real))
 
-    def propagate(self, targets, real):
-        """Advance every lane towards its own target; stop early after a step with a stopping event
-        or once some real lane is at its target (checked every TARGET_CHECK_STEPS steps).
+    def propagate(self, targets, real, stops=None):
+        """Advance every lane towards its own target; stop early after a step with a stopping event,
+        after the first step that takes a lane to or past its ``stops`` time (checked every step), or
+        once some real lane is at its target (checked every TARGET_CHECK_STEPS steps).
 
         Returns (hits, steps per lane, outcome ok per lane).
         """
         rec = self.recorder
         rec.hits, rec.stop, rec.calls = [], False, 0
         rec.targets, rec.real = np.asarray(targets, dtype=float), np.asarray(real, dtype=bool)
+        rec.stops = None
+        if stops is not None and np.isfinite(stops).any():
+            rec.stops = np.asarray(stops, dtype=float)
         self.ta.propagate_until(rec.targets, callback=self._step_callback)
         res = self.ta.propagate_res
         return list(rec.hits), [int(r[3]) for r in res], [r[0] in self._ok for r in res]

@@ -57,6 +57,9 @@ class LaneDriver:
             if reason is not None:
                 s.finish(reason)
                 return
+        if s.time >= s.stop_time():  # past an end time inside the chunk (a fate in the step past it)
+            s.finish(EndReason.END_TIME)
+            return
         self.pool(s.n).queue.append(s)
 
     # ------------------------------------------------------------------ one round of one pool
@@ -66,18 +69,18 @@ class LaneDriver:
             if pool.slots[lane] is None and pool.queue:
                 s = pool.queue.popleft()
                 pool.slots[lane] = s
-                li.write(lane, s.x, s.v, s.t, s.pars(li.slots))
+                li.write(lane, s.x, s.v, s.t, s.enter_pars(li.slots))
         real = [s is not None for s in pool.slots]
         donor = real.index(True)
         x, v, _ = li.read(donor)
-        targets = np.zeros(self.lanes)
+        targets, stops = np.zeros(self.lanes), np.full(self.lanes, np.inf)
         for lane, s in enumerate(pool.slots):
             if s is None:  # a copy of a real lane that does not move
                 li.write(lane, x, v, (0.0, 0.0), li.ta.pars[:, donor].copy())
             else:
-                targets[lane] = s.target()
+                targets[lane], stops[lane] = s.target(), s.stop_time()
         start = time.perf_counter()
-        hits, steps, ok = li.propagate(targets, real)
+        hits, steps, ok = li.propagate(targets, real, stops)
         share = (time.perf_counter() - start) / sum(real)
         by_lane: dict = {}
         for lane, t, q in sorted(hits, key=lambda h: (h[0], h[1], h[2])):
@@ -96,6 +99,16 @@ class LaneDriver:
                 continue
             if li.ta.time[lane] >= targets[lane]:
                 self.chunk_end(pool, lane, s)
+            elif li.ta.time[lane] >= stops[lane]:
+                self.stop_inside(pool, lane, s)
+
+    def stop_inside(self, pool: _Pool, lane: int, s: LaneSystem) -> None:
+        """Past an end time inside a chunk: no check; the state and the lane's event parameters are
+        kept, so that a later end time continues the chunk as if it had never stopped."""
+        s.x, s.v, s.t = pool.li.read(lane)
+        s.lane_pars = pool.li.ta.pars[:, lane].copy()
+        pool.slots[lane] = None
+        s.finish(EndReason.END_TIME)
 
     def leave(self, pool: _Pool, lane: int, s: LaneSystem, t=None) -> None:
         """Take system s out of its lane, its state at time t (dense output) or at the lane's time."""
@@ -145,6 +158,7 @@ class LaneDriver:
         """At a grid time: ejections, the stopping rules, the end time, the wall cap; as rebound_run.SystemRun."""
         li = pool.li
         s.x, s.v, s.t = li.read(lane)
+        last = s.last_chunk()
         s.ledger.chunks_done += 1
         k = s.unbound_far()
         if k is not None:
@@ -154,7 +168,7 @@ class LaneDriver:
                 k = s.unbound_far()
         s.sample_gap()
         reason = s.settled()
-        if reason is None and s.time >= s.t_end:
+        if reason is None and last:
             reason = EndReason.END_TIME
         if reason is None and s.ledger.wall_seconds + s.spent >= s.integ.wall_seconds_max:
             reason = EndReason.CAPPED

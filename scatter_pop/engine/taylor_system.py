@@ -18,7 +18,14 @@ import numpy as np
 
 from scatter_pop.constants import G_AU_YR_MSUN
 from scatter_pop.engine.encounters import binding_to_interior, classify_star_pass, merge_jump, relative_orbit
-from scatter_pop.engine.ledger import FateEntry, Ledger, read_checkpoint, write_checkpoint
+from scatter_pop.engine.ledger import (
+    END_ON_CHECK,
+    FateEntry,
+    Ledger,
+    read_checkpoint,
+    without_end_time,
+    write_checkpoint,
+)
 from scatter_pop.engine.outcome import NO_PLANET, EndReason, Fate
 from scatter_pop.engine.record_builder import build_record, planet_index, planet_name
 from scatter_pop.engine.settlement import GAP_CHECKS, orbit_gap_hill
@@ -65,12 +72,13 @@ class LaneSystem:
         self.record = None
         self.steps = 0
         self.spent = 0.0  # this segment's share of wall time (s)
+        self.lane_pars = None  # event parameters to enter a lane with (a state left inside a chunk)
         identity = {"initial": asdict(initial), "integration": asdict(integ), "outcomes": asdict(out)}
         identity["integration"].pop("wall_seconds_max")
         identity["integration"]["integrator"] = "taylor"
         self.identity = json.loads(json.dumps(identity))
-        if self.path is not None and self.path.exists() and self._restore():
-            pass
+        if self.path is not None and self.path.exists():
+            self._restore()
         else:
             self._build()
 
@@ -95,33 +103,28 @@ class LaneSystem:
         self._encounter_now()
 
     def _restore(self) -> bool:
-        """Continue from the checkpoint; False (start over) if it was written for another end time.
+        """Continue from the checkpoint (a capped state, or a state stopped at an earlier end time).
 
-        A state stopped at its end time is not continued to a later one (``t_limit`` NaN in the
-        record): ``propagate_until`` lands exactly on the end time, which changes the last step, so a
-        continuation would not be the run made with the later end time from the start.
+        The end time is not part of a checkpoint's identity: checks fall on the same chunk grid
+        whatever the end time and an end time inside a chunk stops the lane on its first step past
+        it with no check (:meth:`stop_time`), so the kept state continues to a later end time exactly
+        as the run made with that end time from the start.
         """
         self.ledger, blob = read_checkpoint(self.path)
-        other = self.ledger.identity.get("integration", {})
-        mine = self.identity["integration"]
-        if (
-            {k: v for k, v in other.items() if k not in ("end_time", "end_orbits")}
-            == {k: v for k, v in mine.items() if k not in ("end_time", "end_orbits")}
-            and self.ledger.identity.get("initial") == self.identity["initial"]
-            and other != mine
-        ):
-            return False
-        if self.ledger.identity != self.identity or not blob.startswith(BLOB_MAGIC):
+        if without_end_time(self.ledger.identity) != without_end_time(self.identity) or not blob.startswith(BLOB_MAGIC):
             raise InputError(
                 f"checkpoint {str(self.path)!r}: written for another system or other settings "
                 f"(system index {self.ledger.identity.get('initial', {}).get('index')!r}); "
                 "remove it or point to the right file"
             )
+        self.ledger.identity = self.identity
         state = json.loads(blob[len(BLOB_MAGIC) :].decode("utf-8"))
         self.m = np.array(state["m"])
         self.x, self.v = np.array(state["x"]).reshape(-1, 3), np.array(state["v"]).reshape(-1, 3)
         self.t = (float(state["t_hi"]), float(state["t_lo"]))
         self.steps = int(state["steps"])
+        lane_pars = state.get("lane_pars")
+        self.lane_pars = None if lane_pars is None else np.array(lane_pars, dtype=float)
         return True
 
     def write_checkpoint(self):
@@ -133,6 +136,8 @@ class LaneSystem:
             "t_lo": self.t[1],
             "steps": self.steps,
         }
+        if self.lane_pars is not None:  # the event parameters of a lane left inside a chunk
+            state["lane_pars"] = list(map(float, self.lane_pars))
         write_checkpoint(self.path, self.ledger, BLOB_MAGIC + json.dumps(state).encode("utf-8"))
 
     # ------------------------------------------------------------------ quantities
@@ -145,7 +150,25 @@ class LaneSystem:
         return self.t[0]
 
     def target(self) -> float:
-        return min((self.ledger.chunks_done + 1) * self.chunk, self.t_end)
+        """The end of the current chunk: (k + 1) * ``check_orbits`` initial inner orbits, whatever the end time."""
+        return (self.ledger.chunks_done + 1) * self.chunk
+
+    def last_chunk(self) -> bool:
+        """The end time is at the end of the current chunk or before it."""
+        boundary = self.target()
+        return self.t_end - boundary <= END_ON_CHECK * boundary
+
+    def stop_time(self) -> float:
+        """The end time if it falls inside the current chunk (the lane then stops on its first step past
+        it, with no check, as ``exact_finish_time = 0`` does on the REBOUND path), else infinity."""
+        boundary = self.target()
+        return self.t_end if self.last_chunk() and boundary - self.t_end > END_ON_CHECK * boundary else math.inf
+
+    def enter_pars(self, slots) -> np.ndarray:
+        """The event parameters to enter a lane with: those kept from the lane it left inside a chunk
+        (first-encounter radii are set at chunk ends), else from the state now."""
+        pars, self.lane_pars = self.lane_pars, None
+        return self.pars(slots) if pars is None else pars
 
     def radius(self, k: int) -> float:
         return self.ledger.radius[self.ledger.bodies[k]]
@@ -271,8 +294,8 @@ class LaneSystem:
     def finish(self, reason: EndReason) -> None:
         self.ledger.wall_seconds += self.spent
         self.spent = 0.0
-        if reason == EndReason.CAPPED:
-            if self.path is not None:
+        if reason in (EndReason.CAPPED, EndReason.END_TIME):
+            if self.path is not None:  # continued by a larger cap or a later end time
                 self.write_checkpoint()
         elif self.path is not None and self.path.exists():
             os.remove(self.path)
@@ -290,7 +313,7 @@ class LaneSystem:
             circularisation_q=self.out.circularisation_q,
             lanes=self.lanes,
             star_mass=float(self.m[0]),
-            t_limit=math.nan,  # not continued to a later end time (see _restore)
+            t_limit=self.t_end,
             hill_margin=self.integ.hill_margin,
             hill_ratio=marchal_bozis_state_ratio(self.m, self.x, self.v, G) if self.n == 3 else math.nan,
             recent_gap=min(gaps) if len(gaps := self.ledger.recent_gaps) == GAP_CHECKS else math.nan,

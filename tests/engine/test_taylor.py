@@ -23,7 +23,7 @@ from scatter_pop.engine.initial_conditions import InitialSystem, draw_system, sp
 from scatter_pop.engine.integrate import integrate_initial  # noqa: E402
 from scatter_pop.engine.outcome import EndReason, Fate  # noqa: E402
 from scatter_pop.engine.stability import hill_stable_circular, tidal_disruption_radius  # noqa: E402
-from scatter_pop.engine.taylor_lanes import lane_integrator  # noqa: E402
+from scatter_pop.engine.taylor_lanes import LaneIntegrator, lane_integrator  # noqa: E402
 from scatter_pop.errors import InputError  # noqa: E402
 from scatter_pop.spec.reader import IntegrationSpec, OutcomeSpec, parse_spec  # noqa: E402
 
@@ -85,7 +85,7 @@ def phase_draws(n=10, seed=1):
 # orbits: mergers, Hill-stable pairs and planets left in tens of years.  Set-up choices, not check values;
 # the tolerance is pinned so that the set-up keeps its events whatever the default (the Dask-level
 # tests in tests/ensemble/test_taylor_runs.py run at the default).
-TRIO = parse_spec("""
+TRIO_TEXT = """
 [run]
 seed = 11
 systems = 16
@@ -106,7 +106,8 @@ taylor_tolerance = 1e-13
 end_time = 100.0
 ejection_distance = 8.0
 check_orbits = 5
-""")
+"""
+TRIO = parse_spec(TRIO_TEXT)
 PICKED = (0, 2, 8, 11)
 
 
@@ -160,8 +161,36 @@ def test_capped_system_continues_bit_for_bit(tmp_path, trio_alone):
             else:
                 done[i] = rec
     assert len(done) == len(PICKED)
-    for i in PICKED:
-        assert same(trio_alone[i], done[i]) and not paths[i].exists()
+    for i in PICKED:  # the state of a system stopped at the end time is kept (it may be carried further)
+        assert same(trio_alone[i], done[i])
+        assert paths[i].exists() == (done[i].end_reason == EndReason.END_TIME)
+
+
+@pytest.mark.parametrize("early", ["end_time = 37.3", "end_orbits = 30.0"])  # inside a chunk; on a chunk end
+def test_raised_end_time_continues_as_the_later_run_from_the_start(tmp_path, trio_alone, early, monkeypatch):
+    # common practice (reproducibility): a state stopped at an earlier end time, carried to a later one
+    # from its checkpoint, ends with the record of the run made with the later end time from the start
+    # (the first-encounter radii of the chunk it stopped in are kept with the state), and only the
+    # steps after the earlier end time are integrated again
+    before = parse_spec(TRIO_TEXT.replace("end_time = 100.0", early))
+    paths = [tmp_path / f"e{i}.ckpt" for i in PICKED]
+    first = taylor_systems(before, PICKED, checkpoint_paths=paths)
+    stopped = [k for k, rec in enumerate(first) if rec.end_reason == EndReason.END_TIME]
+    assert len(stopped) >= 2 and all(paths[k].exists() for k in stopped)
+    assert all(first[k].t_limit == first[k].t_end or first[k].t_end > first[k].t_limit for k in stopped)
+    taken = []
+    propagate = LaneIntegrator.propagate
+
+    def counting(self, targets, real, *args):
+        hits, steps, ok = propagate(self, targets, real, *args)
+        taken.append(sum(n for n, filled in zip(steps, real) if filled))
+        return hits, steps, ok
+
+    monkeypatch.setattr(LaneIntegrator, "propagate", counting)
+    again = taylor_systems(TRIO, [PICKED[k] for k in stopped], checkpoint_paths=[paths[k] for k in stopped])
+    for k, rec in zip(stopped, again):
+        assert same(trio_alone[PICKED[k]], rec)
+    assert sum(taken) == sum(rec.steps for rec in again) - sum(first[k].steps for k in stopped)
 
 
 def test_checkpoint_of_another_system_is_refused(tmp_path):

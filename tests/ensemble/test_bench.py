@@ -172,3 +172,16 @@ def test_quick_benchmark_runs_every_path(tmp_path, capsys):
     assert doc["summary"]["reference"]["energy_error_max"] < 1e-10
     assert doc["summary"]["reference"]["speedup"] == 1.0
     assert 0 < doc["summary"]["reference"]["worker_peak_rss_mb"] < 4096
+
+
+@pytest.mark.slow
+def test_worker_peak_memory_is_the_workers_own_not_the_drivers():
+    # getrusage(2): resource usage is preserved across execve, so a spawned worker's ru_maxrss starts at
+    # its parent's peak; the benchmark must report the worker's own address space (Linux VmHWM).
+    from scatter_pop.ensemble.bench import Path, run_paths
+
+    ballast = np.ones(400 * 1024 * 1024 // 8)  # this (driver) process: >= 400 MB resident
+    spec = bench_spec(2, 50.0)
+    rows = run_paths(spec, [Path("reference", spec.integration, True)], workers=1, log=None)["reference"]
+    assert ballast.sum() > 0
+    assert all(0 < peak < 350 for _, _, peak in rows)  # an IAS15 worker: well under the ballast

@@ -32,8 +32,8 @@ EXTRA = "ejection_distance = 25.0\ncheck_orbits = 20.0\n"
 QUIET = dict(progress_interval=60.0, log=lambda line: None)
 
 
-def taylor_text(systems=N, extra=EXTRA) -> str:
-    return spec_text(systems=systems, end_time=T_END, extra=extra).replace(
+def taylor_text(systems=N, extra=EXTRA, end_time=T_END) -> str:
+    return spec_text(systems=systems, end_time=end_time, extra=extra).replace(
         'integrator = "ias15"', 'integrator = "taylor"'
     )
 
@@ -86,13 +86,35 @@ def test_capped_systems_extended_and_continued_end_as_uncapped_ones(ref, tmp_pat
     first = scatter_pop.run_ensemble(capped, out=out, client=client, batch_size=4, **QUIET)
     stopped = first["system"].values[first["end_reason"].values == EndReason.CAPPED]
     assert stopped.size >= 3
-    assert sorted(p.name for p in (out / "checkpoints").iterdir()) == [f"system_{i:08d}.bin" for i in stopped]
+    kept = first["system"].values[np.isin(first["end_reason"].values, [EndReason.CAPPED, EndReason.END_TIME])]
+    assert sorted(p.name for p in (out / "checkpoints").iterdir()) == [f"system_{i:08d}.bin" for i in kept]
     second = scatter_pop.run_ensemble(capped, out=out, client=client, batch_size=4, extend=True, **QUIET)
     assert (second["t_end"].sel(system=stopped).values > first["t_end"].sel(system=stopped).values).all()
     final = scatter_pop.run_ensemble(parse_spec(taylor_text()), out=out, client=client, batch_size=4, **QUIET)
     assert not (final["end_reason"].values == EndReason.CAPPED).any()
-    assert list((out / "checkpoints").iterdir()) == []
+    at_end = final["system"].values[final["end_reason"].values == EndReason.END_TIME]  # kept to be carried further
+    assert sorted(p.name for p in (out / "checkpoints").iterdir()) == [f"system_{i:08d}.bin" for i in at_end]
     assert_physics_equal(final, ref)
+
+
+def test_raised_end_time_carries_the_unsettled_systems_to_the_later_run(ref, tmp_path, client):
+    # a folder run to an earlier end time (inside a chunk), then with the spec's end time raised: the
+    # systems stopped at the earlier end time continue from their kept state and end as the systems
+    # run alone to the later end time from the start; settled ones are not touched
+    out = tmp_path / "run"
+    first = scatter_pop.run_ensemble(
+        parse_spec(taylor_text(end_time=0.37 * T_END)), out=out, client=client, batch_size=4, **QUIET
+    )
+    stopped = first["end_reason"].values == EndReason.END_TIME
+    assert stopped.sum() >= 4 and (first["t_limit"].values == 0.37 * T_END).all()
+    lines = []
+    final = scatter_pop.run_ensemble(
+        parse_spec(taylor_text()), out=out, client=client, batch_size=4, progress_interval=60.0, log=lines.append
+    )
+    assert any(f"{stopped.sum()} systems carried from their end time to the later one" in line for line in lines)
+    assert_physics_equal(final, ref)
+    assert (final["t_limit"].values[stopped] == T_END).all()
+    np.testing.assert_array_equal(final["wall_seconds"].values[~stopped], first["wall_seconds"].values[~stopped])
 
 
 def test_interrupted_run_resumed_in_other_batches_equals_systems_run_alone(ref, tmp_path, client):

@@ -24,8 +24,11 @@ path (:mod:`scatter_pop.engine.rebound_run`), by these means:
   (``stability.mutual_hill_radius`` from the orbit sizes at the last chunk end; the REBOUND path samples
   the separation at its step ends instead).
 * Chunks end exactly on the grid (k + 1) * ``check_orbits`` initial inner orbits (``propagate_until``
-  lands on it); between chunks the same checks as the REBOUND path; the wall cap counts each system's
-  share of the batch's wall time.  The lane time is double-length and a checkpoint keeps both halves.
+  lands on it), whatever the end time; between chunks the same checks as the REBOUND path; the wall
+  cap counts each system's share of the batch's wall time.  An end time inside a chunk stops the lane
+  on its first step past it, with no check (as ``exact_finish_time = 0`` on the REBOUND path); the
+  state, its double-length time and the lane's event parameters are kept in the checkpoint, so that a
+  raised end time continues the chunk exactly as a run made with the later end time from the start.
 
 A lane's steps depend on its own state and target time only (heyoka's step-size control is per lane),
 so a record does not depend on its companions, its lane, the batch size or the lane count (4 and 8
