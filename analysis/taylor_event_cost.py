@@ -24,7 +24,7 @@ import numpy as np
 from scatter_pop.constants import G_AU_YR_MSUN
 from scatter_pop.engine.backends.taylor import LaneSystem
 from scatter_pop.engine.initial_conditions import draw_system
-from scatter_pop.engine.taylor_lanes import EVENT_SCALE, LaneIntegrator
+from scatter_pop.engine.taylor_lanes import LaneIntegrator, event_direction, event_function
 from scatter_pop.ensemble.bench import bench_spec
 
 VARIANTS = (
@@ -37,22 +37,13 @@ VARIANTS = (
 )
 
 
-def build(li: LaneIntegrator, systems, kinds, tol):
-    """A batch integrator with the events of ``kinds`` only, loaded with the systems."""
+def build(li: LaneIntegrator, kinds, tol):
+    """A batch integrator with the back end's events of ``kinds`` only."""
     eqs = hy.model.nbody(li.n, masses=[hy.par[k] for k in range(li.n)], Gconst=G_AU_YR_MSUN)
     var = [lhs for lhs, _ in eqs]
-    events = []
-    for slot in li.slots:
-        if slot.kind not in kinds:
-            continue
-        a, b = var[6 * slot.i : 6 * slot.i + 3], var[6 * slot.j : 6 * slot.j + 3]
-        d2 = sum(((a[c] - b[c]) ** 2 for c in range(3)), hy.expression(0.0))
-        direction = hy.event_direction.positive if slot.kind == "escape" else hy.event_direction.negative
-        events.append(
-            hy.nt_event_batch(EVENT_SCALE * (d2 - hy.par[slot.par] ** 2), lambda *a: None, direction=direction)
-        )
-    used = [s.par for s in li.slots if s.kind in kinds]
-    n_par = max(used) + 1 if used else li.n
+    chosen = [slot for slot in li.slots if slot.kind in kinds]
+    events = [hy.nt_event_batch(event_function(var, s), lambda *a: None, direction=event_direction(s)) for s in chosen]
+    n_par = max(s.par for s in chosen) + 1 if chosen else li.n
     ta = hy.taylor_adaptive_batch(
         eqs, np.zeros((6 * li.n, li.lanes)), tol=tol, pars=np.zeros((n_par, li.lanes)), nt_events=events
     )
@@ -76,7 +67,7 @@ def main() -> None:
     li = LaneIntegrator(4, 8, tol)
     print(f"tol {tol:.0e}, order {li.ta.order}, 8 lanes to {end:g} yr, {repeats} repeats interleaved")
     runs = [(name, kinds, False) for name, kinds in VARIANTS] + [("all 15 + callback", VARIANTS[-1][1], True)]
-    built = {name: build(li, systems, kinds, tol) for name, kinds, _ in runs}
+    built = {name: build(li, kinds, tol) for name, kinds, _ in runs}
     per_step = {name: [] for name, _, _ in runs}
     finals, steps = {}, {}
     for _ in range(repeats):

@@ -34,14 +34,27 @@ __all__ = [
     "END_ON_CHECK",
     "END_KEYS",
     "without_end_time",
+    "checkpoint_identity",
 ]
 
 CHECKPOINT_MAGIC = b"SPCKPT01"
 END_ON_CHECK = 1e-12  # an end time this close (relative) to a chunk boundary counts as on it
 
 
+def checkpoint_identity(initial, integration, outcomes, **integration_overrides) -> dict:
+    """What a checkpoint must match to be continued: the system, its integration settings and outcome
+    rules, without the wall-clock cap and the end time (a kept state continues to a larger cap or a
+    later end time), as JSON-clean values."""
+    identity = {"initial": asdict(initial), "integration": asdict(integration), "outcomes": asdict(outcomes)}
+    for key in ("wall_seconds_max", *END_KEYS):
+        identity["integration"].pop(key)
+    identity["integration"].update(integration_overrides)
+    return json.loads(json.dumps(identity))
+
+
 def without_end_time(identity: dict) -> dict:
-    """A checkpoint identity without the end-time keys of its ``integration`` section."""
+    """A checkpoint identity without the end-time keys of its ``integration`` section (taylor
+    checkpoints written before 2026-12-02 kept them)."""
     out = dict(identity)
     out["integration"] = {k: v for k, v in identity.get("integration", {}).items() if k not in END_KEYS}
     return out

@@ -56,11 +56,9 @@ checked between chunks, so it can be exceeded by one chunk's duration.
 
 from __future__ import annotations
 
-import json
 import math
 import os
 import time
-from dataclasses import asdict
 from pathlib import Path
 
 import numpy as np
@@ -74,7 +72,14 @@ from scatter_pop.engine.encounters import (
     line_min_distance,
     merge_jump,
 )
-from scatter_pop.engine.ledger import END_KEYS, END_ON_CHECK, FateEntry, Ledger, read_checkpoint, write_checkpoint
+from scatter_pop.engine.ledger import (
+    END_ON_CHECK,
+    FateEntry,
+    Ledger,
+    checkpoint_identity,
+    read_checkpoint,
+    write_checkpoint,
+)
 from scatter_pop.engine.outcome import NO_PLANET, EndReason, Fate, SystemRecord
 from scatter_pop.engine.rebound_setup import STAR_NAME, build_simulation, restore_simulation, simulation_blob
 from scatter_pop.engine.rebound_state import astrocentric_orbit, body_size, fate_entry, hybrid_step, state_arrays
@@ -104,10 +109,7 @@ class SystemRun:
         self.error = None
         self.events = False  # a merger, star contact or ejection since the step was chosen
         self.step_changes = []  # (t, dt) each time the hybrid step was re-chosen (diagnostics)
-        identity = {"initial": asdict(initial), "integration": asdict(integration), "outcomes": asdict(outcomes)}
-        for key in ("wall_seconds_max", *END_KEYS):  # a state continues to a later end
-            identity["integration"].pop(key)
-        self.identity = json.loads(json.dumps(identity))
+        self.identity = checkpoint_identity(initial, integration, outcomes)
         if self.path is not None and self.path.exists():
             self.ledger, blob = read_checkpoint(self.path)
             if self.ledger.identity != self.identity:

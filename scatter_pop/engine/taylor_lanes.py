@@ -1,8 +1,8 @@
 """The heyoka batch integrators of the ``taylor`` back end, and the state arithmetic it needs.
 
 One compiled :class:`LaneIntegrator` per (bodies, lanes, tolerance) and thread, kept for the
-life of the process (:func:`lane_integrator`; compiling takes ~0.5-2 s, see
-:data:`COMPILE_SECONDS`).  The equations are ``heyoka.model.nbody`` (Biscani & Izzo 2021, MNRAS 504,
+life of the process (:func:`lane_integrator`; compiling the 2-, 3- and 4-body integrators took
+0.3 + 0.8 + 2.0 s cold and at most 0.12 s from heyoka's disk cache, ``analysis/bench_taylor_1e5.log``).  The equations are ``heyoka.model.nbody`` (Biscani & Izzo 2021, MNRAS 504,
 2614) in the centre-of-mass frame with G = :data:`~scatter_pop.constants.G_AU_YR_MSUN`; body 0 is the
 star, state per body x, y, z, vx, vy, vz; masses are the runtime parameters ``par[0..n-1]``.
 
@@ -43,7 +43,6 @@ from __future__ import annotations
 
 import math
 import threading
-import time
 from dataclasses import dataclass
 
 import numpy as np
@@ -54,18 +53,18 @@ __all__ = [
     "LaneIntegrator",
     "lane_integrator",
     "EventSlot",
-    "COMPILE_SECONDS",
     "energy",
     "angular_momentum",
     "move_to_com",
     "STOPPING_KINDS",
     "lane_count",
+    "event_function",
+    "event_direction",
 ]
 
 STOPPING_KINDS = ("contact", "star", "tidal", "escape")
 EVENT_SCALE = 1e-9  # event functions scaled so that they never enter the step-size control
 TARGET_CHECK_STEPS = 16  # the step callback looks for lanes at their target every this many steps
-COMPILE_SECONDS: dict = {}  # (bodies, lanes, tolerance) -> seconds the compilation took
 _CACHE = threading.local()
 
 
@@ -109,16 +108,14 @@ class LaneIntegrator:
             self.slots += [EventSlot(kind, 0, k, 0) for kind in ("star", "tidal", "escape")]
         self.slots = [EventSlot(s.kind, s.i, s.j, self.n + q) for q, s in enumerate(self.slots)]
         self.n_par = self.n + len(self.slots)
-        events = []
-        for q, slot in enumerate(self.slots):
-            a, b = var[6 * slot.i : 6 * slot.i + 3], var[6 * slot.j : 6 * slot.j + 3]
-            d2 = sum(((a[c] - b[c]) ** 2 for c in range(3)), hy.expression(0.0))
-            expr = EVENT_SCALE * (d2 - hy.par[slot.par] ** 2)
-            direction = hy.event_direction.positive if slot.kind == "escape" else hy.event_direction.negative
-            events.append(
-                hy.nt_event_batch(expr, self._event_callback(q, slot.kind in STOPPING_KINDS), direction=direction)
+        events = [
+            hy.nt_event_batch(
+                event_function(var, slot),
+                self._event_callback(q, slot.kind in STOPPING_KINDS),
+                direction=event_direction(slot),
             )
-        start = time.perf_counter()
+            for q, slot in enumerate(self.slots)
+        ]
         self.ta = hy.taylor_adaptive_batch(
             eqs,
             np.zeros((6 * self.n, self.lanes)),
@@ -126,7 +123,6 @@ class LaneIntegrator:
             pars=np.zeros((self.n_par, self.lanes)),
             nt_events=events,
         )
-        COMPILE_SECONDS[(self.n, self.lanes, self.tol)] = time.perf_counter() - start
         self._ok = {hy.taylor_outcome.time_limit, hy.taylor_outcome.cb_stop, hy.taylor_outcome.success}
 
     def _event_callback(self, q: int, stops: bool):
@@ -192,6 +188,23 @@ class LaneIntegrator:
 
     def set_par(self, lane: int, index: int, value: float) -> None:
         self.ta.pars[index, lane] = value
+
+
+def event_function(var, slot: EventSlot):
+    """The event function of ``slot``: EVENT_SCALE * (d^2 - P^2), d the distance of its two bodies
+    (state variables ``var``, 6 per body) and P its runtime parameter."""
+    import heyoka as hy
+
+    a, b = var[6 * slot.i : 6 * slot.i + 3], var[6 * slot.j : 6 * slot.j + 3]
+    d2 = sum(((a[c] - b[c]) ** 2 for c in range(3)), hy.expression(0.0))
+    return EVENT_SCALE * (d2 - hy.par[slot.par] ** 2)
+
+
+def event_direction(slot: EventSlot):
+    """heyoka's event direction of ``slot``: outward for an escape, inward for every other kind."""
+    import heyoka as hy
+
+    return hy.event_direction.positive if slot.kind == "escape" else hy.event_direction.negative
 
 
 def lane_count() -> int:

@@ -12,7 +12,8 @@ import numpy as np
 from scatter_pop.constants import G_AU_YR_MSUN
 from scatter_pop.engine.encounters import binding_to_interior
 from scatter_pop.engine.outcome import EndReason
-from scatter_pop.engine.taylor_system import LaneSystem, lanes_module
+from scatter_pop.engine.taylor_lanes import lane_integrator
+from scatter_pop.engine.taylor_system import LaneSystem
 
 __all__ = ["LaneDriver"]
 
@@ -21,7 +22,7 @@ class _Pool:
     """The lanes of one compiled integrator and the queue of systems waiting for them."""
 
     def __init__(self, n, lanes, tol):
-        self.li = lanes_module().lane_integrator(n, lanes, tol)
+        self.li = lane_integrator(n, lanes, tol)
         self.slots: list = [None] * lanes
         self.queue: deque = deque()
 

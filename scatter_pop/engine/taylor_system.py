@@ -11,7 +11,6 @@ from __future__ import annotations
 import json
 import math
 import os
-from dataclasses import asdict
 from pathlib import Path
 
 import numpy as np
@@ -22,6 +21,7 @@ from scatter_pop.engine.ledger import (
     END_ON_CHECK,
     FateEntry,
     Ledger,
+    checkpoint_identity,
     read_checkpoint,
     without_end_time,
     write_checkpoint,
@@ -30,32 +30,14 @@ from scatter_pop.engine.outcome import NO_PLANET, EndReason, Fate
 from scatter_pop.engine.record_builder import build_record, planet_index, planet_name
 from scatter_pop.engine.settlement import GAP_CHECKS, orbit_gap_hill
 from scatter_pop.engine.stability import marchal_bozis_state_ratio, mutual_hill_radius, tidal_disruption_radius
+from scatter_pop.engine.taylor_lanes import angular_momentum, energy, move_to_com
 from scatter_pop.errors import InputError
 
-__all__ = ["LaneSystem", "BLOB_MAGIC", "lanes_module", "energy", "angular_momentum", "move_to_com"]
+__all__ = ["LaneSystem", "BLOB_MAGIC"]
 
 G = G_AU_YR_MSUN
 STAR = "star"
 BLOB_MAGIC = b"TAYLOR01"
-
-
-def lanes_module():
-    """:mod:`scatter_pop.engine.taylor_lanes`, imported on first use (it imports heyoka, ~1 s)."""
-    from scatter_pop.engine import taylor_lanes
-
-    return taylor_lanes
-
-
-def energy(m, x, v) -> float:
-    return lanes_module().energy(m, x, v)
-
-
-def angular_momentum(m, x, v):
-    return lanes_module().angular_momentum(m, x, v)
-
-
-def move_to_com(m, x, v):
-    return lanes_module().move_to_com(m, x, v)
 
 
 class LaneSystem:
@@ -73,10 +55,7 @@ class LaneSystem:
         self.steps = 0
         self.spent = 0.0  # this segment's share of wall time (s)
         self.lane_pars = None  # event parameters to enter a lane with (a state left inside a chunk)
-        identity = {"initial": asdict(initial), "integration": asdict(integ), "outcomes": asdict(out)}
-        identity["integration"].pop("wall_seconds_max")
-        identity["integration"]["integrator"] = "taylor"
-        self.identity = json.loads(json.dumps(identity))
+        self.identity = checkpoint_identity(initial, integ, out, integrator="taylor")
         if self.path is not None and self.path.exists():
             self._restore()
         else:
@@ -111,7 +90,7 @@ class LaneSystem:
         as the run made with that end time from the start.
         """
         self.ledger, blob = read_checkpoint(self.path)
-        if without_end_time(self.ledger.identity) != without_end_time(self.identity) or not blob.startswith(BLOB_MAGIC):
+        if without_end_time(self.ledger.identity) != self.identity or not blob.startswith(BLOB_MAGIC):
             raise InputError(
                 f"checkpoint {str(self.path)!r}: written for another system or other settings "
                 f"(system index {self.ledger.identity.get('initial', {}).get('index')!r}); "

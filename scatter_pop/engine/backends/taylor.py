@@ -42,8 +42,9 @@ from dataclasses import replace
 
 from scatter_pop.engine.backends.base import Backend
 from scatter_pop.engine.outcome import SystemRecord
+from scatter_pop.engine.taylor_lanes import lane_count, lane_integrator
 from scatter_pop.engine.taylor_run import LaneDriver
-from scatter_pop.engine.taylor_system import BLOB_MAGIC, LaneSystem, lanes_module
+from scatter_pop.engine.taylor_system import BLOB_MAGIC, LaneSystem
 from scatter_pop.errors import InputError
 
 __all__ = ["BACKEND", "TaylorBackend", "LaneSystem", "LaneDriver", "integrate_lanes", "BLOB_MAGIC"]
@@ -66,14 +67,13 @@ class TaylorBackend(Backend):
 
     def lanes(self) -> int:
         """SIMD lanes this machine integrates together (heyoka's recommended batch size)."""
-        return lanes_module().lane_count()
+        return lane_count()
 
     def prepare(self, integration, bodies: int) -> float:
         """Compile the integrators for 2 .. ``bodies`` bodies at ``integration.taylor_tolerance``."""
-        lanes = lanes_module()
         start = time.perf_counter()
         for n in range(2, int(bodies) + 1):
-            lanes.lane_integrator(n, self.lanes(), float(integration.taylor_tolerance))
+            lane_integrator(n, self.lanes(), float(integration.taylor_tolerance))
         return time.perf_counter() - start
 
     def integrate_one(self, initial, integration, outcomes, *, checkpoint_path=None, reference=False):
